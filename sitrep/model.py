@@ -1,0 +1,185 @@
+"""Plain typed values shared by every stage (no logic beyond checks).
+
+Data flows one way, ``ingest -> analysis -> render -> deliver``; the values
+defined here are the ones that cross more than one seam. Values that belong
+to one stage's output (for example the week's analysis) live in that stage.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import enum
+from pathlib import Path
+from typing import TYPE_CHECKING, Any
+
+from sitrep.weeks import EpiWeek, WeekSystem
+
+if TYPE_CHECKING:
+    import geopandas as gpd
+    import pandas as pd
+
+__all__ = [
+    "COUNT_COLUMNS",
+    "ChangeClass",
+    "ClusterLabel",
+    "CountTable",
+    "Districts",
+    "Finding",
+    "InputFile",
+    "Severity",
+    "ValidationReport",
+]
+
+
+class Severity(enum.Enum):
+    """How much a validation finding matters."""
+
+    ERROR = "error"
+    """The run stops: nothing is archived or sent."""
+    WARNING = "warning"
+    """The report goes out and shows the finding in its data-quality section."""
+    INFO = "info"
+    """Recorded in validation.json only."""
+
+
+class ClusterLabel(enum.Enum):
+    """Local Moran's I category of a district (the one registry of these strings)."""
+
+    HIGH_HIGH = "high-high"
+    LOW_LOW = "low-low"
+    HIGH_LOW = "high-low"
+    LOW_HIGH = "low-high"
+    NOT_SIGNIFICANT = "not significant"
+    NO_NEIGHBOURS = "no neighbours"
+    NO_DATA = "no data"
+    NOT_ASSESSABLE = "not assessable"
+
+
+class ChangeClass(enum.Enum):
+    """Week-over-week change class of an ILI percentage."""
+
+    INCREASE = "increase"
+    DECREASE = "decrease"
+    SIMILAR = "similar"
+    NOT_ASSESSABLE = "not assessable"
+
+
+@dataclasses.dataclass(frozen=True)
+class InputFile:
+    """One input file as read, for provenance and the manifest."""
+
+    role: str
+    path: Path
+    sha256: str
+    size_bytes: int
+
+
+@dataclasses.dataclass(frozen=True)
+class Finding:
+    """One validation finding, pointing at a file position where it has one.
+
+    ``line`` is 1-based with the header as line 1; ``column`` is the column
+    name in the file (not the internal name).
+    """
+
+    severity: Severity
+    rule: str
+    message: str
+    file: str = ""
+    line: int | None = None
+    column: str | None = None
+    district_id: str | None = None
+    value: str | None = None
+
+    def as_dict(self) -> dict[str, Any]:
+        """Machine-readable form (validation.json, ``sitrep check --json``)."""
+        out = dataclasses.asdict(self)
+        out["severity"] = self.severity.value
+        return out
+
+    def location(self) -> str:
+        """``file:line, column 'c'`` as far as known."""
+        parts = [self.file] if self.file else []
+        if self.line is not None:
+            parts.append(f"line {self.line}")
+        if self.column:
+            parts.append(f"column '{self.column}'")
+        return ", ".join(parts)
+
+
+@dataclasses.dataclass(frozen=True)
+class ValidationReport:
+    """All findings of one validation run, in a stable order."""
+
+    findings: tuple[Finding, ...] = ()
+
+    @property
+    def errors(self) -> tuple[Finding, ...]:
+        """Error-level findings (they block the run)."""
+        return tuple(f for f in self.findings if f.severity is Severity.ERROR)
+
+    @property
+    def warnings(self) -> tuple[Finding, ...]:
+        """Warning-level findings (shown in the report)."""
+        return tuple(f for f in self.findings if f.severity is Severity.WARNING)
+
+    @property
+    def blocked(self) -> bool:
+        """True when any error-level finding exists."""
+        return bool(self.errors)
+
+    def merged(self, other: ValidationReport) -> ValidationReport:
+        """Both reports' findings, this one's first."""
+        return ValidationReport(self.findings + other.findings)
+
+
+COUNT_COLUMNS = ("district_id", "week", "reporting_sites", "ili_visits", "total_visits")
+"""Internal column names of :attr:`CountTable.frame` (plus ``district_name``, ``line``)."""
+
+
+@dataclasses.dataclass(frozen=True, eq=False)
+class CountTable:
+    """Weekly counts in long form: one row per district and epi week.
+
+    ``frame`` columns: ``district_id`` (str), ``district_name`` (str, may be
+    empty), ``week`` (:class:`~sitrep.weeks.EpiWeek`), ``reporting_sites``
+    (float, NaN when not supplied), ``ili_visits`` and ``total_visits``
+    (int64), ``line`` (1-based line in the source file, header = 1).
+    Rows are sorted by week, then district id.
+    """
+
+    frame: pd.DataFrame
+    system: WeekSystem
+    source: InputFile
+
+    @property
+    def weeks(self) -> tuple[EpiWeek, ...]:
+        """Distinct weeks in the table, oldest first."""
+        return tuple(sorted(set(self.frame["week"])))
+
+    @property
+    def latest_week(self) -> EpiWeek:
+        """The most recent week in the table."""
+        return max(self.frame["week"])
+
+
+@dataclasses.dataclass(frozen=True, eq=False)
+class Districts:
+    """District boundaries with checked ids and a projected or declared CRS.
+
+    ``frame`` is a GeoDataFrame with columns ``district_id`` (str),
+    ``district_name`` (str) and ``geometry``, sorted by ``district_id``.
+    """
+
+    frame: gpd.GeoDataFrame
+    source: InputFile
+
+    @property
+    def ids(self) -> tuple[str, ...]:
+        """District ids in row order."""
+        return tuple(self.frame["district_id"])
+
+    @property
+    def names(self) -> dict[str, str]:
+        """District id to display name."""
+        return dict(zip(self.frame["district_id"], self.frame["district_name"], strict=True))
