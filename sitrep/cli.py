@@ -1,0 +1,265 @@
+"""The ``sitrep`` command: a thin argparse front end over :mod:`sitrep.pipeline`.
+
+Exit codes (also in ``sitrep --help``):
+
+====  ==========================================================
+0     done
+1     blocked by validation (or an input could not be read)
+2     usage or configuration error
+3     delivery failed (archive, PDF engine or e-mail)
+====  ==========================================================
+
+Heavy libraries are imported only inside the verbs that need them, so
+``--help`` stays instant.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import sys
+from collections.abc import Sequence
+from pathlib import Path
+from typing import TYPE_CHECKING
+
+from sitrep.errors import (
+    AnalysisError,
+    ConfigError,
+    DeliveryError,
+    InputError,
+    RenderError,
+    SitrepError,
+    ValidationFailed,
+)
+
+if TYPE_CHECKING:
+    from sitrep.config import Config
+    from sitrep.model import ValidationReport
+
+__all__ = ["EXIT_BLOCKED", "EXIT_DELIVERY", "EXIT_OK", "EXIT_USAGE", "main"]
+
+EXIT_OK = 0
+EXIT_BLOCKED = 1
+EXIT_USAGE = 2
+EXIT_DELIVERY = 3
+
+EPILOG = """exit codes: 0 done · 1 blocked by validation or unreadable input ·
+2 usage or configuration error · 3 delivery failed (archive, PDF or e-mail)"""
+
+
+def _demo_inputs() -> Path:
+    """The demo scenario folder: ./demo_inputs, else the one beside the package source."""
+    here = Path.cwd() / "demo_inputs"
+    if (here / "sitrep.toml").is_file():
+        return here
+    beside = Path(__file__).resolve().parent.parent / "demo_inputs"
+    if (beside / "sitrep.toml").is_file():
+        return beside
+    raise ConfigError("demo_inputs/sitrep.toml not found; run from the sitrep source folder or pass --inputs")
+
+
+def _parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(
+        prog="sitrep",
+        description="Weekly influenza-like-illness situation report by district.",
+        epilog=EPILOG,
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    parser.add_argument("--version", action="store_true", help="print the version and exit")
+    sub = parser.add_subparsers(dest="verb", metavar="VERB")
+
+    def verb(name: str, help_text: str) -> argparse.ArgumentParser:
+        return sub.add_parser(name, help=help_text, description=help_text, epilog=EPILOG,
+                              formatter_class=argparse.RawDescriptionHelpFormatter)
+
+    p = verb("demo", "build the invented demo week into an output folder")
+    p.add_argument("--out", type=Path, default=Path("sitrep-demo"), help="output folder (default ./sitrep-demo)")
+    p.add_argument("--inputs", type=Path, default=None, help="demo inputs folder (default ./demo_inputs)")
+
+    p = verb("build", "validate, analyse, render and archive this week's report")
+    p.add_argument("--config", type=Path, required=True, help="the jurisdiction's TOML configuration")
+    p.add_argument("--out", type=Path, default=None, help="output folder (default: output.folder)")
+    p.add_argument("--reissue", metavar="REASON", default=None,
+                   help="write a new version of an already archived week, giving the reason")
+    p.add_argument("--no-archive", action="store_true", help="write the output folder only")
+
+    p = verb("check", "validate the inputs only; print the findings")
+    p.add_argument("--config", type=Path, required=True, help="the jurisdiction's TOML configuration")
+    p.add_argument("--table", type=Path, default=None, help="this week's table (overrides input.table)")
+    p.add_argument("--prior", type=Path, default=None, help="last week's table (overrides input.prior_table)")
+    p.add_argument("--json", action="store_true", help="print the findings as JSON")
+
+    p = verb("verify", "recompute every checksum of an archived bundle")
+    p.add_argument("bundle", type=Path, help="bundle folder, e.g. ARCHIVE/<jurisdiction>/2026-W47/v1")
+
+    p = verb("send", "e-mail an archived bundle's PDF")
+    p.add_argument("bundle", type=Path, help="bundle folder")
+    p.add_argument("--config", type=Path, required=True, help="the jurisdiction's TOML configuration")
+    p.add_argument("--dry-run", action="store_true", help="write the message as .eml instead of sending")
+    p.add_argument("--resend", action="store_true", help="send again although the bundle was sent")
+
+    p = verb("run", "the scheduled Monday job: newest extract in the inbox -> build -> archive -> send")
+    p.add_argument("--config", type=Path, required=True, help="the jurisdiction's TOML configuration")
+    p.add_argument("--dry-run", action="store_true", help="write the e-mail as .eml instead of sending")
+    return parser
+
+
+def _load(path: Path) -> Config:
+    from sitrep.config import load_config
+
+    return load_config(path)
+
+
+def _print_findings(report: ValidationReport, stream: object = None) -> None:
+    out = stream or sys.stdout
+    if not report.findings:
+        print("no findings: the table passed every check", file=out)  # type: ignore[arg-type]
+        return
+    for f in report.findings:
+        where = f.location() or "-"
+        district = f" [{f.district_id}]" if f.district_id else ""
+        print(f"{f.severity.value.upper():7} {f.rule:28} {where}{district}: {f.message}", file=out)  # type: ignore[arg-type]
+    print(f"{len(report.errors)} error(s), {len(report.warnings)} warning(s)", file=out)  # type: ignore[arg-type]
+
+
+def _cmd_demo(args: argparse.Namespace) -> int:
+    import dataclasses
+
+    from sitrep import pipeline
+
+    inputs = args.inputs or _demo_inputs()
+    config = _load(inputs / "sitrep.toml")
+    out = args.out.resolve()
+    config = dataclasses.replace(
+        config, output=dataclasses.replace(config.output, folder=out, archive=out / "archive")
+    )
+    return _build(config, out, reissue=None, archive=True, demo=True)
+
+
+def _build(config: Config, out: Path | None, *, reissue: str | None, archive: bool, demo: bool = False) -> int:
+    from sitrep import pipeline
+
+    try:
+        result = pipeline.build(config, out_dir=out, archive=archive, reissue_reason=reissue,
+                                log=lambda m: print(m))
+    except ValidationFailed as exc:
+        if exc.report is not None:
+            _print_findings(exc.report, sys.stderr)
+        raise
+    except DeliveryError as exc:
+        from sitrep.errors import ArchiveExists
+
+        if demo and isinstance(exc, ArchiveExists):
+            print(f"note: {exc}")
+            result = pipeline.build(config, out_dir=out, archive=False, log=lambda m: print(m))
+        else:
+            raise
+    for path in result.outputs:
+        print(f"wrote {path}")
+    warnings = len(result.validation.warnings)
+    print(f"week {result.week}: done with {warnings} data-quality warning(s)")
+    return EXIT_OK
+
+
+def _cmd_build(args: argparse.Namespace) -> int:
+    return _build(_load(args.config), args.out, reissue=args.reissue, archive=not args.no_archive)
+
+
+def _cmd_check(args: argparse.Namespace) -> int:
+    import dataclasses
+
+    from sitrep import pipeline
+
+    config = _load(args.config)
+    overrides = {}
+    if args.table is not None:
+        overrides["table"] = args.table.resolve()
+    if args.prior is not None:
+        overrides["prior_table"] = args.prior.resolve()
+    if overrides:
+        config = dataclasses.replace(config, input=dataclasses.replace(config.input, **overrides))
+    report = pipeline.check(config)
+    if args.json:
+        print(json.dumps({"blocked": report.blocked, "findings": [f.as_dict() for f in report.findings]},
+                         indent=2, ensure_ascii=False))
+    else:
+        _print_findings(report)
+    return EXIT_BLOCKED if report.blocked else EXIT_OK
+
+
+def _cmd_verify(args: argparse.Namespace) -> int:
+    from sitrep.deliver.archive import verify_bundle
+
+    result = verify_bundle(args.bundle)
+    for label, names in (("missing", result.missing), ("changed", result.changed), ("extra", result.extra)):
+        for name in names:
+            print(f"{label}: {name}")
+    print(f"{'OK' if result.ok else 'FAILED'}: {result.checked} file(s) checked in {args.bundle}")
+    return EXIT_OK if result.ok else EXIT_BLOCKED
+
+
+def _cmd_send(args: argparse.Namespace) -> int:
+    from sitrep.delivery_jobs import send_archived
+
+    outcome = send_archived(_load(args.config), args.bundle, dry_run=args.dry_run, resend=args.resend)
+    print(f"{outcome.status}: {outcome.detail}")
+    return EXIT_OK if outcome.status == "sent" or args.dry_run else EXIT_DELIVERY
+
+
+def _cmd_run(args: argparse.Namespace) -> int:
+    from sitrep.delivery_jobs import scheduled_run
+
+    message = scheduled_run(_load(args.config), dry_run=args.dry_run, log=lambda m: print(m))
+    print(message)
+    return EXIT_OK
+
+
+COMMANDS = {
+    "demo": _cmd_demo,
+    "build": _cmd_build,
+    "check": _cmd_check,
+    "verify": _cmd_verify,
+    "send": _cmd_send,
+    "run": _cmd_run,
+}
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    """Run the CLI; returns the exit code (see the module docstring)."""
+    parser = _parser()
+    try:
+        args = parser.parse_args(argv)
+    except SystemExit as exc:  # argparse exits 2 on usage errors, 0 on --help
+        return int(exc.code or 0)
+    if args.version:
+        from sitrep import __version__
+
+        print(f"sitrep {__version__}")
+        return EXIT_OK
+    if args.verb is None:
+        parser.print_help()
+        return EXIT_USAGE
+    try:
+        return COMMANDS[args.verb](args)
+    except ConfigError as exc:
+        print(f"configuration error: {exc}", file=sys.stderr)
+        return EXIT_USAGE
+    except ValidationFailed as exc:
+        print(f"blocked: {exc}", file=sys.stderr)
+        return EXIT_BLOCKED
+    except (InputError, AnalysisError, RenderError) as exc:
+        print(f"error: {exc}", file=sys.stderr)
+        return EXIT_BLOCKED
+    except DeliveryError as exc:
+        print(f"delivery failed: {exc}", file=sys.stderr)
+        return EXIT_DELIVERY
+    except SitrepError as exc:  # pragma: no cover - every branch is listed above
+        print(f"error: {exc}", file=sys.stderr)
+        return EXIT_BLOCKED
+    except KeyboardInterrupt:
+        print("interrupted; nothing was archived", file=sys.stderr)
+        return 130
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

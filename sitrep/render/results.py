@@ -1,0 +1,124 @@
+"""Machine-readable results: results.csv, results.json and validation.json.
+
+Text cells that a spreadsheet would evaluate as a formula (starting with
+``=``, ``+``, ``-``, ``@``, TAB, CR or LF) are prefixed with an apostrophe
+(OWASP ASVS 1.2.10 guidance on CSV injection); numbers are written as numbers.
+Suppressed districts' values are blanked unless the configuration keeps them.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import json
+import math
+from typing import Any
+
+from sitrep.analysis.week import WeekAnalysis
+from sitrep.config import AnalysisSettings
+from sitrep.model import ValidationReport
+
+__all__ = ["RESULT_COLUMNS", "neutralise_formula", "results_csv", "results_json", "validation_json"]
+
+RESULT_COLUMNS = (
+    "district_id", "district_name", "week", "reporting_sites", "ili_visits", "total_visits",
+    "ili_percent", "ci_low", "ci_high", "suppressed", "prior_ili_percent",
+    "prior_ili_percent_published", "change_pp", "change_low_pp", "change_high_pp",
+    "change_relative", "change_from_zero", "change_p", "change_class", "tercile", "eb_percent",
+    "local_i", "p_value", "q_value", "cluster_label", "prior_cluster_label", "transition",
+)
+_SUPPRESSIBLE = ("ili_visits", "ili_percent", "ci_low", "ci_high", "change_pp", "change_low_pp",
+                 "change_high_pp", "change_relative", "change_p", "eb_percent")
+_TRIGGERS = ("=", "+", "-", "@", "\t", "\r", "\n")
+
+
+def neutralise_formula(text: str) -> str:
+    """Prefix ``'`` to text a spreadsheet would run as a formula.
+
+    >>> neutralise_formula("=HYPERLINK(1)"), neutralise_formula("Ostrelle")
+    ("'=HYPERLINK(1)", 'Ostrelle')
+    """
+    return "'" + text if text.startswith(_TRIGGERS) else text
+
+
+def _records(analysis: WeekAnalysis, settings: AnalysisSettings) -> list[dict[str, Any]]:
+    out = []
+    for rec in analysis.table.to_dict("records"):
+        row = {}
+        for col in RESULT_COLUMNS:
+            value = rec.get(col)
+            if hasattr(value, "item"):
+                value = value.item()
+            if isinstance(value, float) and not math.isfinite(value):
+                value = None
+            row[col] = value
+        if row["suppressed"] and not settings.keep_suppressed_values:
+            for col in _SUPPRESSIBLE:
+                row[col] = None
+        out.append(row)
+    return out
+
+
+def results_csv(analysis: WeekAnalysis, settings: AnalysisSettings) -> bytes:
+    """The per-district table as UTF-8 CSV (RFC 4180 quoting, LF line ends)."""
+    buffer = io.StringIO()
+    writer = csv.writer(buffer, lineterminator="\n")
+    writer.writerow(RESULT_COLUMNS)
+    for row in _records(analysis, settings):
+        cells = []
+        for col in RESULT_COLUMNS:
+            value = row[col]
+            if value is None:
+                cells.append("")
+            elif isinstance(value, bool):
+                cells.append("true" if value else "false")
+            elif isinstance(value, float):
+                cells.append(repr(round(value, 10)))
+            elif isinstance(value, int):
+                cells.append(str(value))
+            else:
+                cells.append(neutralise_formula(str(value)))
+        writer.writerow(cells)
+    return buffer.getvalue().encode("utf-8")
+
+
+def results_json(analysis: WeekAnalysis, settings: AnalysisSettings) -> bytes:
+    """The per-district table and the jurisdiction summary as JSON."""
+    j = analysis.jurisdiction
+
+    def clean(x: Any) -> Any:
+        if hasattr(x, "item"):
+            x = x.item()
+        if isinstance(x, float) and not math.isfinite(x):
+            return None
+        if hasattr(x, "value") and not isinstance(x, (int, float, str)):
+            return x.value
+        return x
+
+    summary = {
+        "ili_percent": clean(j.pct), "ci_low": clean(j.low), "ci_high": clean(j.high),
+        "prior_ili_percent": clean(j.prior_pct),
+        "prior_ili_percent_published": clean(j.prior_pct_published),
+        "change_pp": clean(j.change_pp), "change_class": clean(j.change_class),
+        "ili_visits": clean(j.ili_visits), "total_visits": clean(j.visits),
+        "districts_reporting": clean(j.n_districts_reporting), "districts": clean(j.n_districts_total),
+    }
+    doc = {
+        "week": str(analysis.week),
+        "prior_week": str(analysis.prior_week) if analysis.prior_week else None,
+        "jurisdiction": summary,
+        "tercile_cuts": list(analysis.terciles.cuts) if analysis.terciles.cuts else None,
+        "districts": _records(analysis, settings),
+    }
+    return (json.dumps(doc, indent=2, sort_keys=True, ensure_ascii=False) + "\n").encode("utf-8")
+
+
+def validation_json(report: ValidationReport) -> bytes:
+    """Every finding, machine-readable."""
+    doc = {
+        "blocked": report.blocked,
+        "errors": len(report.errors),
+        "warnings": len(report.warnings),
+        "findings": [f.as_dict() for f in report.findings],
+    }
+    return (json.dumps(doc, indent=2, sort_keys=True, ensure_ascii=False) + "\n").encode("utf-8")

@@ -1,0 +1,69 @@
+"""Data flows one way: a stage imports only stages to its left and the shared leaves."""
+
+from __future__ import annotations
+
+import ast
+from pathlib import Path
+
+import pytest
+
+ORDER = ["ingest", "analysis", "render", "deliver"]
+SHARED = ["model", "errors", "config", "weeks"]
+PACKAGE = Path(__file__).resolve().parent.parent / "sitrep"
+
+
+def sitrep_imports(path: Path) -> set[str]:
+    """First component after ``sitrep.`` of every import in the file (absolute imports only)."""
+    tree = ast.parse(path.read_text(encoding="utf-8"))
+    found = set()
+    for node in ast.walk(tree):
+        if isinstance(node, ast.Import):
+            names = [a.name for a in node.names]
+        elif isinstance(node, ast.ImportFrom):
+            if node.level:
+                raise AssertionError(f"{path}: relative import")
+            names = [node.module or ""]
+        else:
+            continue
+        for name in names:
+            parts = name.split(".")
+            if parts[0] == "sitrep" and len(parts) > 1:
+                found.add(parts[1])
+    return found
+
+
+@pytest.mark.parametrize("stage", ORDER)
+def test_stage_imports_only_leftwards(stage: str) -> None:
+    allowed = set(ORDER[: ORDER.index(stage) + 1] + SHARED)
+    for path in sorted((PACKAGE / stage).glob("*.py")):
+        bad = sitrep_imports(path) - allowed
+        assert not bad, f"{path.name} in {stage} imports {sorted(bad)}"
+
+
+@pytest.mark.parametrize("leaf", SHARED)
+def test_shared_leaves_import_no_stage(leaf: str) -> None:
+    bad = sitrep_imports(PACKAGE / f"{leaf}.py") & set(ORDER + ["pipeline", "cli"])
+    assert not bad, f"{leaf}.py imports {sorted(bad)}"
+
+
+def test_nothing_imports_the_cli() -> None:
+    for path in sorted(PACKAGE.rglob("*.py")):
+        if path.name != "cli.py":
+            assert "cli" not in sitrep_imports(path), path
+
+
+def test_the_checker_catches_a_planted_violation(tmp_path: Path) -> None:
+    planted = tmp_path / "bad.py"
+    planted.write_text("from sitrep.render.html import render_html\n", encoding="utf-8")
+    assert sitrep_imports(planted) == {"render"}
+
+
+def test_no_pyplot_and_no_module_level_weasyprint() -> None:
+    for path in sorted(PACKAGE.rglob("*.py")):
+        tree = ast.parse(path.read_text(encoding="utf-8"))
+        for node in tree.body:
+            if isinstance(node, (ast.Import, ast.ImportFrom)):
+                names = [a.name for a in node.names] if isinstance(node, ast.Import) else [node.module or ""]
+                assert not any(n.startswith("weasyprint") for n in names), path
+        text = path.read_text(encoding="utf-8")
+        assert "matplotlib.pyplot" not in text, path
