@@ -1,0 +1,219 @@
+"""The week read against the season: pooled curves, baseline, thresholds, onset, flags (pure).
+
+Adapts the count tables to the array functions of :mod:`sitrep.analysis.seasonal`
+and :mod:`sitrep.analysis.aberration`:
+
+- the jurisdiction's weekly ILI% is the pooled ratio (sum of ILI visits over
+  sum of all visits) of the districts that reported that week;
+- seasons are keyed by their label (e.g. ``2025-26``) and aligned by season
+  week (1 = the configured start week), so a week 53 only lengthens its season;
+- past seasons are those before the current one; the current season's weeks
+  come from this week's table (revised values), falling back to the history;
+- district aberration flags use each district's own ILI% series across the
+  history and this week's table.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+
+import numpy as np
+import pandas as pd
+
+from sitrep.analysis import aberration, seasonal
+from sitrep.config import SeasonalSettings
+from sitrep.model import CountTable
+from sitrep.weeks import EpiWeek, season_of
+
+__all__ = ["SeasonalContext", "pooled_by_week", "seasonal_context"]
+
+FloatArray = np.ndarray
+
+
+@dataclasses.dataclass(frozen=True, eq=False)
+class SeasonalContext:
+    """This week against its season and past seasons."""
+
+    season_label: str
+    season_week: int
+    current_curve: tuple[tuple[int, float], ...]
+    """(season week, pooled ILI%) of the current season up to the report week."""
+    past_curves: tuple[tuple[str, tuple[float, ...]], ...]
+    """(season label, pooled ILI% by season week) for each past season, oldest first."""
+    baseline: float | None
+    baseline_note: str
+    epidemic_threshold: float | None
+    post_threshold: float | None
+    medium: float | None
+    high: float | None
+    very_high: float | None
+    thresholds_available: bool
+    thresholds_reason: str
+    intensity: str
+    onset_week: EpiWeek | None
+    same_week_past: tuple[tuple[str, float | None], ...]
+    season_peak: tuple[EpiWeek, float] | None
+    district_flags: dict[str, str]
+    method_note: str
+    mem: seasonal.MemThresholds | None = None
+
+
+def pooled_by_week(frame: pd.DataFrame) -> pd.DataFrame:
+    """Pooled ILI% per week: columns week, ili_visits, total_visits, pct (weeks sorted)."""
+    grouped = frame.groupby("week", sort=True)[["ili_visits", "total_visits"]].sum().reset_index()
+    total = grouped["total_visits"].astype(float)
+    grouped["pct"] = np.where(total > 0, 100.0 * grouped["ili_visits"] / total.where(total > 0, 1.0), np.nan)
+    return grouped
+
+
+def _combined(history: CountTable | None, current: CountTable) -> pd.DataFrame:
+    """History rows for weeks the current table lacks, plus the current table's rows."""
+    frames = [current.frame]
+    if history is not None:
+        have = set(current.frame["week"])
+        frames.insert(0, history.frame[~history.frame["week"].isin(have)])
+    return pd.concat(frames, ignore_index=True)
+
+
+def seasonal_context(
+    history: CountTable | None,
+    current: CountTable,
+    week: EpiWeek,
+    settings: SeasonalSettings,
+    *,
+    season_start_week: int = 40,
+) -> SeasonalContext:
+    """Compute the seasonal context of ``week`` (see the module docstring)."""
+    rows = _combined(history, current)
+    rows = rows[rows["week"] <= week]
+    pooled = pooled_by_week(rows)
+    season_label, season_week = season_of(week, season_start_week)
+    by_season: dict[str, dict[int, float]] = {}
+    for w, pct in zip(pooled["week"], pooled["pct"], strict=True):
+        label, index = season_of(w, season_start_week)
+        by_season.setdefault(label, {})[index] = float(pct)
+    past: dict[str, FloatArray] = {}
+    for label in sorted(by_season):
+        if label >= season_label:
+            continue
+        values = by_season[label]
+        length = max(values)
+        past[label] = np.array([values.get(i, np.nan) for i in range(1, length + 1)], dtype=float)
+    current_values = by_season.get(season_label, {})
+    curve = tuple((i, current_values[i]) for i in sorted(current_values) if i <= season_week)
+    this_pct = current_values.get(season_week, math.nan)
+
+    mem = seasonal.mem_thresholds(
+        past,
+        delta=settings.mem_delta,
+        form=settings.mem_form,
+        max_seasons=settings.mem_max_seasons,
+    ) if past else None
+    available = bool(mem and mem.available)
+    reason = mem.reason if mem is not None else (
+        "Epidemic thresholds are not available: the history holds no past season."
+    )
+
+    baseline_value: float | None = None
+    baseline_note = ""
+    if past:
+        periods = [seasonal.epidemic_period(v, delta=settings.mem_delta, label=k) for k, v in past.items()]
+        base = seasonal.baseline_from_nonepidemic(
+            past,
+            periods,
+            sd_multiplier=settings.baseline_sd,
+            n_seasons=settings.baseline_seasons,
+        )
+        if base.available and base.value is not None:
+            baseline_value = float(base.value)
+            baseline_note = (
+                f"mean + {settings.baseline_sd:g} SD of ILI% in the weeks outside each of the last "
+                f"{len(base.seasons_used)} seasons' epidemic periods ({base.n_weeks} weeks)"
+            )
+        else:
+            baseline_note = base.reason
+    else:
+        baseline_note = "not available: the history holds no past season"
+
+    onset = None
+    if available and mem is not None and mem.epidemic_threshold is not None:
+        series = np.array([current_values.get(i, np.nan) for i in range(1, season_week + 1)], dtype=float)
+        start = seasonal.season_onset(series, mem.epidemic_threshold, k=settings.onset_weeks)
+        if start is not None:
+            onset = week - (season_week - start)
+    intensity = (
+        seasonal.intensity_level(this_pct, mem).value if mem is not None else "not available"
+    )
+    same_week = seasonal.same_week_past_seasons(past, season_week) if past else ()
+    peak = None
+    if curve:
+        best = max(curve, key=lambda item: (item[1] if math.isfinite(item[1]) else -1.0, -item[0]))
+        if math.isfinite(best[1]):
+            peak = (week - (season_week - best[0]), best[1])
+
+    flags = _district_flags(rows, week, settings)
+    note = _method_note(settings, mem, baseline_note)
+    return SeasonalContext(
+        season_label=season_label,
+        season_week=season_week,
+        current_curve=curve,
+        past_curves=tuple((k, tuple(float(x) for x in v)) for k, v in past.items()),
+        baseline=baseline_value,
+        baseline_note=baseline_note,
+        epidemic_threshold=mem.epidemic_threshold if available and mem else None,
+        post_threshold=mem.post_epidemic_threshold if available and mem else None,
+        medium=mem.medium_threshold if available and mem else None,
+        high=mem.high_threshold if available and mem else None,
+        very_high=mem.very_high_threshold if available and mem else None,
+        thresholds_available=available,
+        thresholds_reason=reason,
+        intensity=intensity,
+        onset_week=onset,
+        same_week_past=tuple(same_week),
+        season_peak=peak,
+        district_flags=flags,
+        method_note=note,
+        mem=mem,
+    )
+
+
+def _district_flags(rows: pd.DataFrame, week: EpiWeek, settings: SeasonalSettings) -> dict[str, str]:
+    """'C1', 'C2', 'C3' alarms per district for ``week`` (empty string when none)."""
+    recent_weeks = [week - k for k in range(11, -1, -1)]
+    sub = rows[rows["week"].isin(recent_weeks)]
+    if sub.empty:
+        return {}
+    total = sub["total_visits"].astype(float)
+    pct = np.where(total > 0, 100.0 * sub["ili_visits"] / total.where(total > 0, 1.0), np.nan)
+    wide = (
+        pd.DataFrame({"district_id": sub["district_id"], "week": sub["week"], "pct": pct})
+        .pivot_table(index="district_id", columns="week", values="pct", aggfunc="first")
+        .reindex(columns=recent_weeks)
+        .sort_index()
+    )
+    result = aberration.aberration_this_week(
+        wide.to_numpy(dtype=float), sd_floor=settings.aberration_sd_floor_pp
+    )
+    flags = {}
+    for i, district in enumerate(wide.index):
+        names = [s.name for s in (result.c1, result.c2, result.c3) if bool(s.alarms[i])]
+        flags[str(district)] = ", ".join(names)
+    return flags
+
+
+def _method_note(settings: SeasonalSettings, mem: seasonal.MemThresholds | None, baseline_note: str) -> str:
+    form = "mean + z·SD of the pooled values (point form)" if settings.mem_form == "point" else "upper limit of the confidence interval of the mean"
+    text = (
+        f"Moving Epidemic Method (Vega et al. 2013; intensity levels Vega et al. 2015) on the pooled weekly ILI% of up to "
+        f"{settings.mem_max_seasons} past seasons: epidemic periods by the maximum accumulated rates percentage with slope "
+        f"criterion δ = {settings.mem_delta:g}; epidemic threshold from the highest pre-epidemic values, intensity thresholds "
+        f"(medium, high, very high at the 40%, 90% and 97.5% levels) from the highest epidemic values on the log scale, "
+        f"{form}. Onset: first of {settings.onset_weeks} consecutive weeks at or above the epidemic threshold. "
+        f"Baseline: {baseline_note or 'not available'} (without laboratory data, non-influenza weeks are the weeks outside "
+        f"each season's epidemic period). District flags: C1, C2 and C3 aberration statistics (Hutwagner et al. 2003) "
+        f"applied to weekly ILI%, baseline SD floored at {settings.aberration_sd_floor_pp:g} percentage points."
+    )
+    if mem is not None and mem.available:
+        text += f" Seasons used: {', '.join(mem.seasons_used)}."
+    return text
