@@ -1,0 +1,594 @@
+"""The analysis of one report week: every number the report shows (pure: no I/O).
+
+:func:`analyse_week` composes the analysis modules in a fixed order:
+
+1. counts of this week and of last week per boundary district (a district
+   missing from the table has no data);
+2. ILI% with its interval, suppression of small denominators;
+3. week-over-week change against last week's *revised* counts;
+4. terciles (this week, and the last few weeks on this week's cut points);
+5. empirical Bayes rates; global and local Moran's I this week and last
+   week, and how the clusters changed;
+6. the jurisdiction-wide pooled figures.
+
+The result, :class:`WeekAnalysis`, is what render receives.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+from typing import TYPE_CHECKING
+
+import numpy as np
+import pandas as pd
+
+from sitrep.analysis.change import ChangeTable, week_over_week
+from sitrep.analysis.clusters import ClusterResult, GlobalMoranResult, global_moran, local_clusters
+from sitrep.analysis.proportions import (
+    BoolArray,
+    FloatArray,
+    IntArray,
+    ili_percent,
+    proportion_interval,
+)
+from sitrep.analysis.ranks import NO_DATA, TercileResult, tercile_ranks
+from sitrep.analysis.smoothing import eb_rates
+from sitrep.analysis.transitions import ClusterTransitions, compare_weeks
+from sitrep.analysis.weights import DistrictGraph
+from sitrep.errors import AnalysisError
+from sitrep.model import ChangeClass, CountTable, Districts
+from sitrep.weeks import EpiWeek
+
+if TYPE_CHECKING:
+    from sitrep.config import AnalysisSettings
+
+__all__ = ["TABLE_COLUMNS", "JurisdictionSummary", "WeekAnalysis", "analyse_week", "fixed_ranks"]
+
+TABLE_COLUMNS: tuple[str, ...] = (
+    "district_id",
+    "district_name",
+    "week",
+    "reporting_sites",
+    "ili_visits",
+    "total_visits",
+    "ili_percent",
+    "ci_low",
+    "ci_high",
+    "suppressed",
+    "prior_ili_percent",
+    "prior_ili_percent_published",
+    "prior_total_visits",
+    "change_pp",
+    "change_low_pp",
+    "change_high_pp",
+    "change_relative",
+    "change_from_zero",
+    "change_p",
+    "change_class",
+    "tercile",
+    "eb_percent",
+    "local_i",
+    "p_value",
+    "q_value",
+    "cluster_label",
+    "prior_cluster_label",
+    "transition",
+)
+"""Columns of :attr:`WeekAnalysis.table`, in order."""
+
+_SUPPRESSED_BLANKED = (
+    "ili_percent",
+    "ci_low",
+    "ci_high",
+    "change_pp",
+    "change_low_pp",
+    "change_high_pp",
+    "change_relative",
+    "change_p",
+    "eb_percent",
+)
+
+
+@dataclasses.dataclass(frozen=True)
+class JurisdictionSummary:
+    """Jurisdiction-wide figures pooled over all districts with data.
+
+    Percentages are ``100 * sum(ILI visits) / sum(all visits)`` (each visit
+    counts once; not a mean of district percentages), with the interval of
+    ``settings.interval`` at ``settings.confidence`` on the pooled counts.
+    Suppressed districts count here: suppression hides unstable district
+    percentages, not visits. NaN where a week has no visits at all.
+    """
+
+    ili_percent: float
+    ci_low: float
+    ci_high: float
+    ili_visits: int
+    total_visits: int
+    reporting_sites: float
+    """Sum of the supplied reporting-site counts; NaN if no district supplied one."""
+    n_districts_reporting: int
+    """Districts with at least one visit this week."""
+    n_districts_total: int
+    """Districts in the boundary file."""
+    prior_ili_percent: float
+    """Last week, revised (counts as known this week)."""
+    prior_ci_low: float
+    prior_ci_high: float
+    prior_ili_percent_published: float
+    """Last week as published in last week's table (NaN without it)."""
+    prior_ili_visits: int
+    prior_total_visits: int
+    change_pp: float
+    change_low_pp: float
+    change_high_pp: float
+    change_relative: float
+    change_from_zero: bool
+    change_p: float
+    change_class: ChangeClass
+
+
+@dataclasses.dataclass(frozen=True, eq=False)
+class WeekAnalysis:
+    """Everything computed for one report week (analysis -> render).
+
+    Attributes
+    ----------
+    week, prior_week : EpiWeek
+        The report week and the week before it.
+    table : pandas.DataFrame
+        One row per boundary district in boundary order, columns
+        :data:`TABLE_COLUMNS`. ``week`` is the label string, ``change_class``,
+        ``cluster_label``, ``prior_cluster_label`` and ``transition`` are the
+        enum values as strings (``prior_cluster_label`` is "" without a last
+        week). Suppressed districts keep their counts; their percentages are
+        NaN unless ``settings.keep_suppressed_values`` (render must still
+        hide them whenever ``suppressed`` is True).
+    jurisdiction : JurisdictionSummary
+    change : ChangeTable
+        The district change arrays behind the ``change_*`` columns.
+    terciles : TercileResult
+        This week's classes (suppressed and no-data districts excluded).
+    recent_terciles : tuple of (EpiWeek, numpy.ndarray of int)
+        The last ``recent_weeks`` weeks (oldest first, ending with this week)
+        that have counts, each classed on **this week's** cut points so that
+        one legend serves every panel; ranks 0 (no data/suppressed) to 3.
+        Empty when this week's cut points do not exist.
+    clusters : ClusterResult
+        Local Moran's I of this week.
+    prior_clusters : ClusterResult or None
+        Last week's, computed the same way from its revised counts; None
+        when last week has no counts.
+    global_moran : GlobalMoranResult
+    transitions : ClusterTransitions
+    graph : DistrictGraph
+    settings : AnalysisSettings
+    notes : tuple of str
+        Plain-language remarks for the methods and data-quality sections.
+    """
+
+    week: EpiWeek
+    prior_week: EpiWeek
+    table: pd.DataFrame
+    jurisdiction: JurisdictionSummary
+    change: ChangeTable
+    terciles: TercileResult
+    recent_terciles: tuple[tuple[EpiWeek, IntArray], ...]
+    clusters: ClusterResult
+    prior_clusters: ClusterResult | None
+    global_moran: GlobalMoranResult
+    transitions: ClusterTransitions
+    graph: DistrictGraph
+    settings: AnalysisSettings
+    notes: tuple[str, ...]
+
+
+@dataclasses.dataclass(frozen=True, eq=False)
+class _Counts:
+    """One week's counts aligned with the boundary ids (NaN = no row)."""
+
+    sites: FloatArray
+    ili: FloatArray
+    visits: FloatArray
+    names: tuple[str, ...]
+
+    @property
+    def has_data(self) -> BoolArray:
+        """True where the district has a row (visits present) that week."""
+        return ~np.isnan(self.visits)
+
+
+def _week_rows(frame: pd.DataFrame, week: EpiWeek) -> pd.DataFrame:
+    mask = np.fromiter((w == week for w in frame["week"]), dtype=bool, count=len(frame))
+    return frame.loc[mask]
+
+
+def _aligned(rows: pd.DataFrame, ids: tuple[str, ...]) -> _Counts:
+    """Counts of ``rows`` reindexed on ``ids`` (missing district -> NaN)."""
+    by_id = rows.set_index(rows["district_id"].astype(str))
+    if by_id.index.has_duplicates:
+        dupes = sorted(set(by_id.index[by_id.index.duplicated()]))
+        raise AnalysisError(
+            f"district(s) {dupes} appear more than once in one week; validation should have "
+            "blocked this table"
+        )
+    idx = pd.Index(ids)
+
+    def col(name: str) -> FloatArray:
+        if name not in by_id.columns:
+            return np.full(len(ids), np.nan)
+        return np.asarray(
+            by_id[name].reindex(idx).to_numpy(dtype=np.float64, na_value=np.nan), dtype=np.float64
+        )
+
+    names = (
+        by_id["district_name"].reindex(idx).fillna("").astype(str)
+        if "district_name" in by_id.columns
+        else pd.Series([""] * len(ids), index=idx)
+    )
+    return _Counts(col("reporting_sites"), col("ili_visits"), col("total_visits"), tuple(names))
+
+
+def _combine(primary: _Counts, fallback: _Counts) -> tuple[_Counts, int]:
+    """Per district: ``primary`` where it has counts, else ``fallback``; and how many fell back."""
+    use = ~primary.has_data & fallback.has_data
+
+    def pick(a: FloatArray, b: FloatArray) -> FloatArray:
+        return np.asarray(np.where(use, b, a), dtype=np.float64)
+
+    names = tuple(b if u else a for a, b, u in zip(primary.names, fallback.names, use, strict=True))
+    return _Counts(
+        pick(primary.sites, fallback.sites),
+        pick(primary.ili, fallback.ili),
+        pick(primary.visits, fallback.visits),
+        names,
+    ), int(use.sum())
+
+
+def fixed_ranks(values: FloatArray, cuts: tuple[float, float], valid: BoolArray) -> IntArray:
+    """Class ``values`` on given tercile cut points, as :func:`tercile_ranks` does.
+
+    Right-closed classes: 1 if ``v <= q1``, 2 if ``q1 < v <= q2``, 3 if
+    ``v > q2``; ``NO_DATA`` (0) where the value is not finite or ``valid``
+    is False.
+    """
+    out = np.full(values.shape, NO_DATA, dtype=np.int64)
+    ok = np.isfinite(values) & valid
+    out[ok] = np.searchsorted(np.asarray(cuts), values[ok], side="left") + 1
+    return out
+
+
+def _nan_sum(a: FloatArray) -> float:
+    present = ~np.isnan(a)
+    return float(a[present].sum()) if present.any() else float("nan")
+
+
+def analyse_week(
+    current: CountTable,
+    prior: CountTable | None,
+    districts: Districts,
+    dg: DistrictGraph,
+    settings: AnalysisSettings,
+    *,
+    week: EpiWeek | None = None,
+    recent_weeks: int = 4,
+) -> WeekAnalysis:
+    """Compute every district and jurisdiction figure of one report week.
+
+    Parameters
+    ----------
+    current : CountTable
+        This week's extract (one week or season to date).
+    prior : CountTable or None
+        Last week's extract as it was received (for "revised from x to y"
+        and as a fallback when ``current`` lacks last week).
+    districts : Districts
+        Boundaries; every boundary district gets a row, in boundary order.
+    dg : DistrictGraph
+        Graph built on ``districts.frame`` (same ids, same order).
+    settings : AnalysisSettings
+        Interval, suppression, change test, permutation and correction
+        settings.
+    week : EpiWeek, optional
+        The report week; default ``current.latest_week``.
+    recent_weeks : int, default 4
+        Number of weeks (ending with this one) in ``recent_terciles``.
+
+    Returns
+    -------
+    WeekAnalysis
+
+    Raises
+    ------
+    AnalysisError
+        If ``week`` has no rows in ``current``, the graph does not match the
+        boundaries, ``recent_weeks`` is below 1, or a downstream function
+        rejects the counts.
+
+    Notes
+    -----
+    *Last week* is ``week - 1`` in the table's week system. For each district
+    its counts are taken from ``current`` when ``current`` has a row for it
+    in that week (the revised value), otherwise from ``prior``; the value in
+    ``prior`` is also kept as "published". A district is *suppressed* when it
+    has fewer than ``settings.min_visits`` visits: it is left out of the
+    terciles and of the cluster statistics (label "no data"), and its
+    percentages are blanked in the table unless
+    ``settings.keep_suppressed_values``. The same rule, on last week's
+    revised visits, applies to last week's clusters. The cluster statistic
+    uses ``settings.cluster_variable`` (ILI% or the empirical Bayes rate in
+    percent). Deterministic: the only randomness is esda's, seeded with
+    ``settings.seed``.
+    """
+    if recent_weeks < 1:
+        raise AnalysisError(f"recent_weeks must be at least 1, got {recent_weeks}")
+    ids = districts.ids
+    if tuple(dg.ids) != tuple(ids):
+        raise AnalysisError(
+            "the neighbour graph was built on other districts (or another order) than the "
+            "boundaries; build it with build_graph(districts.frame)"
+        )
+    week = current.latest_week if week is None else week
+    frame = current.frame
+    cur_rows = _week_rows(frame, week)
+    if cur_rows.empty:
+        raise AnalysisError(
+            f"week {week} has no rows in the current table (weeks present: "
+            f"{', '.join(str(w) for w in current.weeks)}); set weeks.report_week to one of them"
+        )
+    prior_week = week - 1
+    notes: list[str] = []
+    known = set(ids)
+    unknown = sorted(set(cur_rows["district_id"].astype(str)) - known)
+    if unknown:
+        notes.append(
+            f"{len(unknown)} district(s) in this week's table are not in the boundaries and "
+            f"were ignored: {', '.join(unknown)}"
+        )
+
+    cur = _aligned(cur_rows, ids)
+    boundary_names = districts.names
+    names = tuple(boundary_names.get(i) or n for i, n in zip(ids, cur.names, strict=True))
+    missing_now = [i for i, ok in zip(ids, cur.has_data, strict=True) if not ok]
+    if missing_now:
+        notes.append(
+            f"{len(missing_now)} district(s) have no row for {week}: {', '.join(missing_now)}"
+        )
+
+    # Last week: revised (from this week's table) where available, else as published.
+    revised_here = _aligned(_week_rows(frame, prior_week), ids)
+    if prior is not None:
+        published = _aligned(_week_rows(prior.frame, prior_week), ids)
+    else:
+        published = _aligned(frame.iloc[0:0], ids)
+    before, fell_back = _combine(revised_here, published)
+    if fell_back and revised_here.has_data.any():
+        notes.append(
+            f"{fell_back} district(s) have no revised row for {prior_week} in this week's "
+            "table; last week's published counts were used for them"
+        )
+    elif fell_back:
+        notes.append(
+            f"this week's table has no rows for {prior_week}; last week's published counts "
+            "were used (no revisions are visible)"
+        )
+    if not before.has_data.any():
+        notes.append(f"no counts for {prior_week}: changes and last week's clusters are not shown")
+
+    # This week: ILI%, interval, suppression.
+    x1, n1 = cur.ili, cur.visits
+    pct = ili_percent(x1, n1)
+    low, high = proportion_interval(
+        x1, n1, confidence=settings.confidence, method=settings.interval
+    )
+    suppressed = cur.has_data & (n1 < settings.min_visits)
+    if suppressed.any():
+        notes.append(
+            f"{int(suppressed.sum())} district(s) had fewer than {settings.min_visits} visits; "
+            "their percentages are not shown and they are left out of terciles and clusters: "
+            + ", ".join(sorted(i for i, s in zip(ids, suppressed, strict=True) if s))
+        )
+    usable = cur.has_data & ~suppressed & (n1 > 0)
+
+    change = week_over_week(
+        x1,
+        n1,
+        before.ili,
+        before.visits,
+        method=settings.change_test,
+        alpha=settings.change_alpha,
+        min_change_pp=settings.min_change_pp,
+        confidence=settings.confidence,
+    )
+    terciles = tercile_ranks(pct, valid=usable)
+    if terciles.note:
+        notes.append("terciles: " + terciles.note)
+    eb_pct = 100.0 * eb_rates(x1, n1)
+
+    # Clusters this week and last week, on the same graph and settings.
+    values = _cluster_values(settings, pct, eb_pct, usable)
+    clusters = _local(values, dg, settings)
+    gm = global_moran(values, dg, permutations=settings.permutations, seed=settings.seed)
+    prior_clusters: ClusterResult | None = None
+    if before.has_data.any():
+        x0, n0 = before.ili, before.visits
+        usable0 = before.has_data & (n0 >= settings.min_visits) & (n0 > 0)
+        values0 = _cluster_values(settings, ili_percent(x0, n0), 100.0 * eb_rates(x0, n0), usable0)
+        prior_clusters = _local(values0, dg, settings)
+    transitions = compare_weeks(clusters, prior_clusters, dg)
+    notes.extend(f"clusters: {n}" for n in clusters.notes)
+
+    recent = _recent_terciles(
+        current, prior, ids, week, recent_weeks, terciles, settings.min_visits, notes
+    )
+    jurisdiction = _jurisdiction(cur, before, published, settings)
+
+    prior_pct = ili_percent(before.ili, before.visits)
+    published_pct = ili_percent(published.ili, published.visits)
+    table = pd.DataFrame(
+        {
+            "district_id": list(ids),
+            "district_name": list(names),
+            "week": [week.label] * len(ids),
+            "reporting_sites": cur.sites,
+            "ili_visits": pd.array(x1, dtype="Int64"),
+            "total_visits": pd.array(n1, dtype="Int64"),
+            "ili_percent": pct,
+            "ci_low": 100.0 * low,
+            "ci_high": 100.0 * high,
+            "suppressed": suppressed,
+            "prior_ili_percent": prior_pct,
+            "prior_ili_percent_published": published_pct,
+            "prior_total_visits": pd.array(before.visits, dtype="Int64"),
+            "change_pp": change.diff_pp,
+            "change_low_pp": change.low_pp,
+            "change_high_pp": change.high_pp,
+            "change_relative": change.relative,
+            "change_from_zero": change.from_zero,
+            "change_p": change.p_value,
+            "change_class": [c.value for c in change.classes],
+            "tercile": terciles.ranks,
+            "eb_percent": eb_pct,
+            "local_i": clusters.local_i,
+            "p_value": clusters.p_values,
+            "q_value": clusters.q_values,
+            "cluster_label": [lab.value for lab in clusters.labels],
+            "prior_cluster_label": (
+                [lab.value for lab in prior_clusters.labels]
+                if prior_clusters is not None
+                else [""] * len(ids)
+            ),
+            "transition": [t.value for t in transitions.districts],
+        },
+        columns=list(TABLE_COLUMNS),
+    )
+    if not settings.keep_suppressed_values and suppressed.any():
+        for column in _SUPPRESSED_BLANKED:
+            table.loc[suppressed, column] = np.nan
+        table.loc[suppressed, "change_from_zero"] = False
+        table.loc[suppressed, "change_class"] = ChangeClass.NOT_ASSESSABLE.value
+
+    return WeekAnalysis(
+        week=week,
+        prior_week=prior_week,
+        table=table,
+        jurisdiction=jurisdiction,
+        change=change,
+        terciles=terciles,
+        recent_terciles=recent,
+        clusters=clusters,
+        prior_clusters=prior_clusters,
+        global_moran=gm,
+        transitions=transitions,
+        graph=dg,
+        settings=settings,
+        notes=tuple(notes),
+    )
+
+
+def _cluster_values(
+    settings: AnalysisSettings, pct: FloatArray, eb_pct: FloatArray, usable: BoolArray
+) -> FloatArray:
+    chosen = eb_pct if settings.cluster_variable == "eb_rate" else pct
+    return np.where(usable, chosen, np.nan)
+
+
+def _local(values: FloatArray, dg: DistrictGraph, settings: AnalysisSettings) -> ClusterResult:
+    return local_clusters(
+        values,
+        dg,
+        permutations=settings.permutations,
+        seed=settings.seed,
+        alpha=settings.alpha,
+        correction=settings.correction,
+        q=settings.fdr_q,
+    )
+
+
+def _recent_terciles(
+    current: CountTable,
+    prior: CountTable | None,
+    ids: tuple[str, ...],
+    week: EpiWeek,
+    recent_weeks: int,
+    terciles: TercileResult,
+    min_visits: int,
+    notes: list[str],
+) -> tuple[tuple[EpiWeek, IntArray], ...]:
+    """Last weeks classed on this week's cut points (current table first, then prior)."""
+    if terciles.cuts is None:
+        notes.append("recent weeks are not classed: this week has no tercile cut points")
+        return ()
+    out: list[tuple[EpiWeek, IntArray]] = []
+    skipped: list[str] = []
+    for back in range(recent_weeks - 1, -1, -1):
+        w = week - back
+        counts = _aligned(_week_rows(current.frame, w), ids)
+        if prior is not None:
+            counts, _ = _combine(counts, _aligned(_week_rows(prior.frame, w), ids))
+        if not counts.has_data.any():
+            skipped.append(str(w))
+            continue
+        valid = counts.has_data & (counts.visits >= min_visits) & (counts.visits > 0)
+        ranks = fixed_ranks(ili_percent(counts.ili, counts.visits), terciles.cuts, valid)
+        ranks.setflags(write=False)
+        out.append((w, ranks))
+    if skipped:
+        notes.append(f"no counts for {', '.join(skipped)}: those map panels are left out")
+    return tuple(out)
+
+
+def _jurisdiction(
+    cur: _Counts, before: _Counts, published: _Counts, settings: AnalysisSettings
+) -> JurisdictionSummary:
+    def totals(c: _Counts) -> tuple[int, int]:
+        ok = c.has_data & ~np.isnan(c.ili)
+        return int(c.ili[ok].sum()), int(c.visits[ok].sum())
+
+    x1, n1 = totals(cur)
+    x0, n0 = totals(before)
+    xp, np_ = totals(published)
+
+    def pct_ci(x: int, n: int) -> tuple[float, float, float]:
+        p = ili_percent(np.array([x]), np.array([n]))[0]
+        lo, hi = proportion_interval(
+            np.array([x]), np.array([n]), confidence=settings.confidence, method=settings.interval
+        )
+        return float(p), float(100.0 * lo[0]), float(100.0 * hi[0])
+
+    p1, l1, h1 = pct_ci(x1, n1)
+    p0, l0, h0 = pct_ci(x0, n0)
+    pp = float(ili_percent(np.array([xp]), np.array([np_]))[0])
+    ch = week_over_week(
+        np.array([x1]),
+        np.array([n1]),
+        np.array([x0]),
+        np.array([n0]),
+        method=settings.change_test,
+        alpha=settings.change_alpha,
+        min_change_pp=settings.min_change_pp,
+        confidence=settings.confidence,
+    )
+    return JurisdictionSummary(
+        ili_percent=p1,
+        ci_low=l1,
+        ci_high=h1,
+        ili_visits=x1,
+        total_visits=n1,
+        reporting_sites=_nan_sum(np.where(cur.has_data, cur.sites, np.nan)),
+        n_districts_reporting=int((cur.has_data & (cur.visits > 0)).sum()),
+        n_districts_total=len(cur.visits),
+        prior_ili_percent=p0,
+        prior_ci_low=l0,
+        prior_ci_high=h0,
+        prior_ili_percent_published=pp,
+        prior_ili_visits=x0,
+        prior_total_visits=n0,
+        change_pp=float(ch.diff_pp[0]),
+        change_low_pp=float(ch.low_pp[0]),
+        change_high_pp=float(ch.high_pp[0]),
+        change_relative=float(ch.relative[0]),
+        change_from_zero=bool(ch.from_zero[0]),
+        change_p=float(ch.p_value[0]),
+        change_class=ch.classes[0],
+    )
