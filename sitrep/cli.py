@@ -259,6 +259,18 @@ def main(argv: Sequence[str] | None = None) -> int:
     except KeyboardInterrupt:
         print("interrupted; nothing was archived", file=sys.stderr)
         return 130
+    except Exception as exc:  # a bug, not bad input: say so in one line, keep the detail on request
+        import os
+        import traceback
+
+        if os.environ.get("SITREP_DEBUG"):
+            traceback.print_exc()
+        print(
+            f"internal error ({type(exc).__name__}: {exc}); nothing was archived or sent. "
+            "Set SITREP_DEBUG=1 to see the details and report them.",
+            file=sys.stderr,
+        )
+        return EXIT_BLOCKED
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -199,7 +199,7 @@ def build(
         inputs.history, inputs.table, week, config.seasonal, season_start_week=config.weeks.season_start_week
     )
     versions = library_versions()
-    with reproducible_env(week.end):
+    with reproducible_env(source_date_epoch(week.end)):
         figures = draw_report_figures(analysis, seasonal, inputs.districts)
         context = build_context(
             analysis=analysis,

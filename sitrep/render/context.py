@@ -18,7 +18,7 @@ from sitrep.analysis.week import WeekAnalysis
 from sitrep.config import Config
 from sitrep.model import InputFile, Severity, ValidationReport
 from sitrep.render import narrative as nv
-from sitrep.render.report_figures import ReportFigures
+from sitrep.render.report_figures import FigureItem, ReportFigures
 
 __all__ = [
     "DistrictRow",
@@ -37,18 +37,6 @@ class IndicatorRow:
     label: str
     value: str
     note: str = ""
-
-
-@dataclasses.dataclass(frozen=True)
-class FigureItem:
-    """One figure: inline image data and its words."""
-
-    key: str
-    title: str
-    caption: str
-    alt: str
-    svg_data_uri: str
-    png_data_uri: str
 
 
 @dataclasses.dataclass(frozen=True)
@@ -172,25 +160,25 @@ def build_context(
         week_number=week.week,
         dates=dates,
         jurisdiction=config.report.jurisdiction,
-        pct=j.pct,
-        low=j.low,
-        high=j.high,
+        pct=j.ili_percent,
+        low=j.ci_low,
+        high=j.ci_high,
         n_reporting=j.n_districts_reporting,
         n_total=j.n_districts_total,
     )
     change = nv.change_sentence(
         change_class=j.change_class.value,
-        pct_now=j.pct,
-        pct_before=j.prior_pct,
+        pct_now=j.ili_percent,
+        pct_before=j.prior_ili_percent,
         diff_pp=j.change_pp,
         low_pp=j.change_low_pp,
         high_pp=j.change_high_pp,
         prior_week_number=prior.week if prior is not None else week.week - 1,
-        revised_from=j.prior_pct_published,
+        revised_from=j.prior_ili_percent_published,
         completeness_drop=completeness_drop,
     )
     thresholds = nv.threshold_sentence(
-        pct=j.pct,
+        pct=j.ili_percent,
         epidemic_threshold=seasonal.epidemic_threshold,
         intensity=seasonal.intensity if seasonal.thresholds_available else None,
         baseline=seasonal.baseline,
@@ -208,18 +196,18 @@ def build_context(
     )
     clusters = analysis.clusters
     assessable = not all(lab.value == "not assessable" for lab in clusters.labels)
+    transitions = analysis.transitions
     groups = []
-    for change_item in analysis.transitions.group_changes:
-        if change_item.kind == "vanished":
-            continue
-        movement = _movement(change_item)
-        groups.append((change_item.label.value, [names[i] for i in change_item.ids_now], movement))
+    for group in transitions.groups_now:
+        match = next((c for c in transitions.changes if tuple(c.ids_now) == tuple(group.ids) and c.label is group.label), None)
+        movement = _movement(match) if (match is not None and transitions.compared) else ""
+        groups.append((group.label.value, [names[i] for i in group.ids], movement))
     correction = (
         f"Benjamini–Hochberg false discovery rate q = {config.analysis.fdr_q:g}"
         if config.analysis.correction == "fdr_bh"
         else f"unadjusted p ≤ {config.analysis.alpha:g}"
     )
-    vanished = [c for c in analysis.transitions.group_changes if c.kind == "vanished"]
+    vanished = [c for c in transitions.changes if c.kind == "vanished"] if transitions.compared else []
     cluster = nv.cluster_sentence(
         assessable=assessable,
         reason=" ".join(clusters.notes) or "the values do not vary between districts.",
@@ -346,15 +334,15 @@ def _indicators(analysis: WeekAnalysis, seasonal: SeasonalContext, config: Confi
     j = analysis.jurisdiction
     prior_label = f"week {analysis.prior_week.week}" if analysis.prior_week else "last week"
     revised_note = ""
-    if math.isfinite(_f(j.prior_pct_published)) and math.isfinite(_f(j.prior_pct)):
+    if math.isfinite(_f(j.prior_ili_percent_published)) and math.isfinite(_f(j.prior_ili_percent)):
         revised_note = (
-            f"revised from {nv.fmt_pct(j.prior_pct_published)} as published last week"
-            if round(j.prior_pct_published, 1) != round(j.prior_pct, 1)
+            f"revised from {nv.fmt_pct(j.prior_ili_percent_published)} as published last week"
+            if round(j.prior_ili_percent_published, 1) != round(j.prior_ili_percent, 1)
             else "unchanged by revisions"
         )
     rows = [
-        IndicatorRow("ILI% this week", nv.fmt_pct(j.pct), f"95% CI {nv.fmt_interval(j.low, j.high)}; {nv.fmt_count(j.ili_visits)} of {nv.fmt_count(j.visits)} visits"),
-        IndicatorRow(f"ILI% {prior_label} (revised)", nv.fmt_pct(j.prior_pct), revised_note),
+        IndicatorRow("ILI% this week", nv.fmt_pct(j.ili_percent), f"95% CI {nv.fmt_interval(j.ci_low, j.ci_high)}; {nv.fmt_count(j.ili_visits)} of {nv.fmt_count(j.total_visits)} visits"),
+        IndicatorRow(f"ILI% {prior_label} (revised)", nv.fmt_pct(j.prior_ili_percent), revised_note),
         IndicatorRow("Change", nv.fmt_pp(j.change_pp), f"95% CI {nv.fmt_num(j.change_low_pp)} to {nv.fmt_num(j.change_high_pp)}; {j.change_class.value}"),
         IndicatorRow("Districts reporting", f"{j.n_districts_reporting} of {j.n_districts_total}", f"{nv.fmt_count(j.reporting_sites)} reporting sites" if math.isfinite(_f(j.reporting_sites)) else ""),
     ]

@@ -96,11 +96,11 @@ def results_json(analysis: WeekAnalysis, settings: AnalysisSettings) -> bytes:
         return x
 
     summary = {
-        "ili_percent": clean(j.pct), "ci_low": clean(j.low), "ci_high": clean(j.high),
-        "prior_ili_percent": clean(j.prior_pct),
-        "prior_ili_percent_published": clean(j.prior_pct_published),
+        "ili_percent": clean(j.ili_percent), "ci_low": clean(j.ci_low), "ci_high": clean(j.ci_high),
+        "prior_ili_percent": clean(j.prior_ili_percent),
+        "prior_ili_percent_published": clean(j.prior_ili_percent_published),
         "change_pp": clean(j.change_pp), "change_class": clean(j.change_class),
-        "ili_visits": clean(j.ili_visits), "total_visits": clean(j.visits),
+        "ili_visits": clean(j.ili_visits), "total_visits": clean(j.total_visits),
         "districts_reporting": clean(j.n_districts_reporting), "districts": clean(j.n_districts_total),
     }
     doc = {

@@ -1,0 +1,440 @@
+"""Read district boundaries (GeoJSON, GeoPackage, Shapefile) into checked :class:`Districts`.
+
+The coordinate reference system is never guessed: it comes from the file or
+from ``input.boundaries_crs``. Ids are text, NFC-normalised. Bad content is
+returned as findings; only a file that cannot be opened raises.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import unicodedata
+import warnings
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from sitrep.config import InputSettings
+from sitrep.errors import InputError
+from sitrep.ingest.read import sort_findings
+from sitrep.model import Districts, Finding, InputFile, Severity, ValidationReport
+
+__all__ = ["REPAIR_AREA_TOLERANCE", "RULES", "read_districts"]
+
+RULES: tuple[tuple[str, str], ...] = (
+    ("boundaries-too-large", "the boundary file is larger than input.max_input_mb"),
+    ("boundaries-format-unknown", "the extension is not .geojson/.json, .gpkg or .shp"),
+    ("boundaries-unreadable", "the file cannot be read as the declared format"),
+    ("boundaries-empty", "the layer holds no features"),
+    (
+        "layer-missing",
+        "the GeoPackage has no layer input.boundaries_layer (or several, none named)",
+    ),
+    ("crs-missing", "no CRS in the file (e.g. a shapefile without .prj) and none declared"),
+    ("crs-invalid", "input.boundaries_crs is not a CRS pyproj understands"),
+    ("crs-conflict", "the file's CRS differs from input.boundaries_crs"),
+    ("crs-coordinates-out-of-range", "coordinates outside lon/lat bounds in a geographic CRS"),
+    ("column-missing", "the id column is not in the layer"),
+    ("column-optional-missing", "the name column is not in the layer; ids are used (warning)"),
+    ("id-missing", "a feature has no district id"),
+    ("id-numeric", "the id column is stored as numbers, not text"),
+    ("id-duplicated", "two features carry the same district id"),
+    ("geometry-missing", "a district's geometry is null or empty"),
+    ("geometry-not-polygon", "a district's geometry is not a Polygon or MultiPolygon"),
+    ("geometry-invalid", "a district's geometry is invalid and cannot be repaired safely"),
+    ("geometry-repaired", "a district's invalid geometry was repaired with make_valid (warning)"),
+    ("reader-warning", "the underlying file reader emitted a warning (info)"),
+)
+"""Rule ids of this module with one-line descriptions (for the documentation)."""
+
+REPAIR_AREA_TOLERANCE = 0.01
+"""A repair is safe when the area changes by at most this share (see :func:`read_districts`)."""
+
+_GEOJSON = {".geojson", ".json"}
+_GPKG = {".gpkg"}
+_SHP = {".shp"}
+
+
+class _Out:
+    def __init__(self, file: str) -> None:
+        self.file = file
+        self.items: list[Finding] = []
+
+    def add(self, severity: Severity, rule: str, message: str, **where: Any) -> None:
+        self.items.append(Finding(severity, rule, message, file=self.file, **where))
+
+    def error(self, rule: str, message: str, **where: Any) -> None:
+        self.add(Severity.ERROR, rule, message, **where)
+
+    @property
+    def has_errors(self) -> bool:
+        return any(f.severity is Severity.ERROR for f in self.items)
+
+    def report(self) -> ValidationReport:
+        return ValidationReport(sort_findings(self.items))
+
+
+def read_districts(
+    path: Path, settings: InputSettings
+) -> tuple[Districts | None, ValidationReport]:
+    """Read and check district boundaries.
+
+    Formats by extension: GeoJSON (``.geojson``/``.json``; RFC 7946 says
+    WGS 84 longitude/latitude, which is assumed unless
+    ``settings.boundaries_crs`` declares another CRS), GeoPackage (``.gpkg``;
+    layer ``settings.boundaries_layer``, or the only layer) and Shapefile
+    (``.shp``; the CRS comes from the ``.prj`` file). Files are read with the
+    pyogrio engine. For any other format a file without a CRS needs
+    ``settings.boundaries_crs``; a file whose CRS differs from a declared one
+    is an error (nothing is reprojected silently).
+
+    Checks, per district id (column ``settings.boundaries_id_column``, text,
+    NFC-normalised, whitespace-stripped when
+    ``settings.strip_id_whitespace``): missing id, numeric id column,
+    duplicate ids, null or empty geometry, non-polygonal geometry. In a
+    geographic CRS, coordinates must lie within longitude -180..180 and
+    latitude -90..90 (metre coordinates labelled WGS 84 fail this).
+
+    Invalid geometry (OGC validity, :func:`shapely.is_valid`) is repaired
+    with :func:`shapely.make_valid` and kept with a ``geometry-repaired``
+    warning only when the repair is *safe*: the result (after dropping
+    zero-area parts such as stray lines) is a Polygon or MultiPolygon whose
+    area differs from the original's planar (shoelace) area by at most
+    ``REPAIR_AREA_TOLERANCE`` (1 %) of the larger of the two. Otherwise the
+    repair would change the district's shape materially (a bow-tie, whose
+    loops' signed areas cancel, is the typical case) and it is an error.
+
+    Parameters
+    ----------
+    path : pathlib.Path
+        The boundary file (for a shapefile, the ``.shp``).
+    settings : InputSettings
+        Layer, id/name columns, declared CRS, id whitespace rule, size cap.
+
+    Returns
+    -------
+    tuple of (Districts or None, ValidationReport)
+        The districts (columns ``district_id``, ``district_name``,
+        ``geometry``, sorted by id; ``None`` when any error was found) and the
+        findings. Multipart districts, holes and enclaves are kept as they are.
+
+    Raises
+    ------
+    InputError
+        Only when the file cannot be opened (missing, a folder, no
+        permission); the message names the path.
+    """
+    path = Path(path)
+    out = _Out(path.name)
+    try:
+        size = path.stat().st_size
+    except OSError as exc:
+        raise InputError(f"cannot open the boundary file {path}: {exc.strerror or exc}") from exc
+    if path.is_dir():
+        raise InputError(f"the boundary file {path} is a folder; give the path of a file")
+    if size > settings.max_input_mb * 1_000_000:
+        out.error(
+            "boundaries-too-large",
+            f"the file is {size / 1e6:,.1f} MB, above the cap of {settings.max_input_mb:g} MB "
+            "(input.max_input_mb); check the file or raise the cap",
+            value=str(size),
+        )
+        return None, out.report()
+    ext = path.suffix.lower()
+    if ext not in _GEOJSON | _GPKG | _SHP:
+        out.error(
+            "boundaries-format-unknown",
+            f"expected a .geojson, .json, .gpkg or .shp file, got '{path.suffix or '(none)'}'; "
+            "convert the boundaries to one of these formats",
+            value=path.suffix,
+        )
+        return None, out.report()
+    try:
+        data = path.read_bytes()
+    except OSError as exc:
+        raise InputError(f"cannot read the boundary file {path}: {exc.strerror or exc}") from exc
+    source = InputFile("boundaries", path, hashlib.sha256(data).hexdigest(), len(data))
+
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        frame = _read_layer(path, ext, settings, out)
+    for w in caught:
+        out.add(Severity.INFO, "reader-warning", f"the file reader warned: {w.message}")
+    if frame is None:
+        return None, out.report()
+    frame = _check_crs(frame, ext, settings, out)
+    if frame is None:
+        return None, out.report()
+    result = _check_features(frame, settings, out)
+    if result is None or out.has_errors:
+        return None, out.report()
+    return Districts(frame=result, source=source), out.report()
+
+
+def _read_layer(path: Path, ext: str, settings: InputSettings, out: _Out) -> Any:
+    import geopandas as gpd
+    import pyogrio
+
+    layer = None
+    if ext in _GPKG:
+        try:
+            layers = [str(x[0]) for x in pyogrio.list_layers(path)]
+        except Exception as exc:  # pyogrio raises DataSourceError and friends
+            out.error(
+                "boundaries-unreadable",
+                f"the file is not a readable GeoPackage ({exc}); re-export it",
+            )
+            return None
+        if settings.boundaries_layer is not None:
+            if settings.boundaries_layer not in layers:
+                out.error(
+                    "layer-missing",
+                    f"expected a layer {settings.boundaries_layer!r} (input.boundaries_layer), "
+                    f"got layers {', '.join(map(repr, layers)) or '(none)'}; set "
+                    "input.boundaries_layer to one of these",
+                    value=settings.boundaries_layer,
+                )
+                return None
+            layer = settings.boundaries_layer
+        elif len(layers) != 1:
+            out.error(
+                "layer-missing",
+                f"the GeoPackage holds {len(layers)} layers ({', '.join(map(repr, layers))}); "
+                "set input.boundaries_layer to the one with the districts",
+            )
+            return None
+        else:
+            layer = layers[0]
+    try:
+        frame = gpd.read_file(path, engine="pyogrio", layer=layer)
+    except Exception as exc:  # pyogrio/GDAL errors have no common public base
+        out.error(
+            "boundaries-unreadable",
+            f"the boundary file cannot be read ({type(exc).__name__}: {exc}); check that it is "
+            "a complete GeoJSON, GeoPackage or Shapefile (with its .shx and .dbf)",
+        )
+        return None
+    if len(frame) == 0:
+        out.error(
+            "boundaries-empty",
+            "expected one feature per district, got an empty layer; check the export",
+        )
+        return None
+    return frame
+
+
+def _check_crs(frame: Any, ext: str, settings: InputSettings, out: _Out) -> Any:
+    from pyproj import CRS
+    from pyproj.exceptions import CRSError
+
+    declared = None
+    if settings.boundaries_crs:
+        try:
+            declared = CRS.from_user_input(settings.boundaries_crs)
+        except CRSError as exc:
+            out.error(
+                "crs-invalid",
+                f"input.boundaries_crs = {settings.boundaries_crs!r} is not a CRS pyproj "
+                f"understands ({exc}); give it as e.g. 'EPSG:32630'",
+                value=settings.boundaries_crs,
+            )
+            return None
+    if ext in _GEOJSON:
+        # GDAL labels every GeoJSON as WGS 84 (RFC 7946); a declaration overrides that.
+        if declared is not None:
+            frame = frame.set_crs(declared, allow_override=True)
+        elif frame.crs is None:
+            frame = frame.set_crs("EPSG:4326")
+    elif frame.crs is None:
+        if declared is None:
+            what = "a shapefile without its .prj file" if ext in _SHP else "a file with no CRS"
+            out.error(
+                "crs-missing",
+                f"expected a coordinate reference system, got {what}; supply the .prj file "
+                "or declare the CRS with input.boundaries_crs (e.g. 'EPSG:32630'). "
+                "sitrep never guesses it",
+            )
+            return None
+        frame = frame.set_crs(declared)
+    elif declared is not None and not CRS(frame.crs).equals(declared, ignore_axis_order=True):
+        out.error(
+            "crs-conflict",
+            f"the file says its CRS is {CRS(frame.crs).name} but input.boundaries_crs declares "
+            f"{declared.name}; remove the declaration or fix the file (nothing is reprojected "
+            "silently)",
+            value=settings.boundaries_crs,
+        )
+        return None
+    crs = CRS(frame.crs)
+    if crs.is_geographic:
+        geoms = frame.geometry[frame.geometry.notna() & ~frame.geometry.is_empty]
+        if len(geoms):
+            minx, miny, maxx, maxy = geoms.total_bounds
+            if minx < -180 or maxx > 180 or miny < -90 or maxy > 90:
+                out.error(
+                    "crs-coordinates-out-of-range",
+                    f"the file is labelled {crs.name} (longitude/latitude in degrees) but its "
+                    f"coordinates span x {minx:,.0f}..{maxx:,.0f}, y {miny:,.0f}..{maxy:,.0f}, "
+                    "outside -180..180 / -90..90; they are probably metres. Declare the real "
+                    "CRS with input.boundaries_crs (e.g. 'EPSG:32630') or re-export as WGS 84",
+                    value=f"{minx:.0f},{miny:.0f},{maxx:.0f},{maxy:.0f}",
+                )
+                return None
+    return frame
+
+
+def _check_features(frame: Any, settings: InputSettings, out: _Out) -> Any:
+    import geopandas as gpd
+    import pandas as pd
+    import shapely
+
+    id_col = settings.boundaries_id_column
+    name_col = settings.boundaries_name_column
+    present = ", ".join(repr(c) for c in frame.columns if c != frame.geometry.name)
+    if id_col not in frame.columns:
+        out.error(
+            "column-missing",
+            f"expected an id column {id_col!r} (input.boundaries_id_column), got columns "
+            f"{present}; set input.boundaries_id_column",
+            column=id_col,
+        )
+        return None
+    raw_ids = frame[id_col]
+    if pd.api.types.is_numeric_dtype(raw_ids.dtype) and not pd.api.types.is_bool_dtype(raw_ids):
+        out.error(
+            "id-numeric",
+            f"expected district ids stored as text, got a numeric column {id_col!r}; numbers "
+            "lose leading zeros ('001' becomes 1). Store the id field as text and export again",
+            column=id_col,
+        )
+        return None
+    strip = settings.strip_id_whitespace
+    ids: list[str | None] = []
+    for v in raw_ids:
+        if v is None or (isinstance(v, float) and np.isnan(v)):
+            ids.append(None)
+            continue
+        text = unicodedata.normalize("NFC", str(v))
+        ids.append(text.strip() if strip else text)
+    if name_col and name_col in frame.columns:
+        names = [
+            ""
+            if v is None or (isinstance(v, float) and np.isnan(v))
+            else unicodedata.normalize("NFC", str(v)).strip()
+            for v in frame[name_col]
+        ]
+    else:
+        if name_col:
+            out.add(
+                Severity.WARNING,
+                "column-optional-missing",
+                f"the name column {name_col!r} (input.boundaries_name_column) is not in the "
+                f"layer (columns: {present}); district ids are shown as names",
+                column=name_col,
+            )
+        names = [""] * len(ids)
+    names = [n or (i or "") for n, i in zip(names, ids, strict=True)]
+
+    seen: dict[str, int] = {}
+    geoms = list(frame.geometry)
+    for k, ident in enumerate(ids):
+        feature = f"feature {k + 1}"
+        if ident is None or ident == "":
+            out.error(
+                "id-missing",
+                f"expected a district id in {id_col!r}, got an empty value at {feature}; fill "
+                "in the id or remove the feature",
+                column=id_col,
+                value=feature,
+            )
+            continue
+        if ident in seen:
+            out.error(
+                "id-duplicated",
+                f"expected one feature per district, got id {ident!r} at features "
+                f"{seen[ident] + 1} and {k + 1}; dissolve the parts into one (Multi)Polygon or "
+                "correct the id",
+                column=id_col,
+                district_id=ident,
+                value=feature,
+            )
+            continue
+        seen[ident] = k
+        g = geoms[k]
+        if g is None or g.is_empty:
+            out.error(
+                "geometry-missing",
+                f"district {ident} has no geometry (null or empty) at {feature}; add its "
+                "boundary or remove the feature",
+                district_id=ident,
+                value=feature,
+            )
+            continue
+        if g.geom_type not in ("Polygon", "MultiPolygon"):
+            out.error(
+                "geometry-not-polygon",
+                f"expected a Polygon or MultiPolygon for district {ident}, got a "
+                f"{g.geom_type}; districts must be areas. Export the boundary polygons",
+                district_id=ident,
+                value=g.geom_type,
+            )
+            continue
+        if not shapely.is_valid(g):
+            reason = shapely.is_valid_reason(g)
+            fixed = _safe_repair(g)
+            if fixed is None:
+                out.error(
+                    "geometry-invalid",
+                    f"district {ident} has invalid geometry ({reason}) that cannot be repaired "
+                    f"safely (the repaired shape's area would differ by more than "
+                    f"{REPAIR_AREA_TOLERANCE:.0%}); fix the polygon in a GIS and export again",
+                    district_id=ident,
+                    value=reason,
+                )
+                continue
+            geoms[k] = fixed
+            out.add(
+                Severity.WARNING,
+                "geometry-repaired",
+                f"district {ident} had invalid geometry ({reason}); it was repaired with "
+                f"make_valid, changing its area by {abs(fixed.area - g.area) / max(fixed.area, g.area):.2%} "
+                f"(at most {REPAIR_AREA_TOLERANCE:.0%} is accepted). Fix the source file when "
+                "convenient",
+                district_id=ident,
+                value=reason,
+            )
+    if out.has_errors:
+        return None
+    result = gpd.GeoDataFrame(
+        {
+            "district_id": pd.Series(ids, dtype=object),
+            "district_name": pd.Series(names, dtype=object),
+        },
+        geometry=gpd.GeoSeries(geoms, crs=frame.crs),
+    )
+    order = np.argsort(np.asarray(ids, dtype=str), kind="stable")
+    return result.iloc[order].reset_index(drop=True)
+
+
+def _safe_repair(geom: Any) -> Any:
+    """The make_valid repair of ``geom`` when it is safe (see read_districts), else None."""
+    import shapely
+    from shapely.geometry import MultiPolygon, Polygon
+
+    fixed = shapely.make_valid(geom)
+    if fixed.geom_type == "GeometryCollection":
+        parts: list[Polygon] = []
+        for part in fixed.geoms:
+            if part.geom_type == "Polygon":
+                parts.append(part)
+            elif part.geom_type == "MultiPolygon":
+                parts.extend(part.geoms)
+        fixed = MultiPolygon(parts) if len(parts) > 1 else (parts[0] if parts else None)
+    if fixed is None or fixed.is_empty or fixed.geom_type not in ("Polygon", "MultiPolygon"):
+        return None
+    before, after = abs(geom.area), fixed.area
+    biggest = max(before, after)
+    if biggest <= 0 or abs(after - before) > REPAIR_AREA_TOLERANCE * biggest:
+        return None
+    return fixed

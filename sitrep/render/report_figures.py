@@ -1,0 +1,213 @@
+"""Draw the report's figures from the week's results, with captions and alt text from the numbers.
+
+Adapts :class:`~sitrep.analysis.week.WeekAnalysis` and the seasonal context
+to the plain-array drawing functions of :mod:`sitrep.render.maps` and
+:mod:`sitrep.render.charts`, and keeps each figure's bytes (SVG for the
+documents, PNG beside them) with the words that describe it.
+"""
+
+from __future__ import annotations
+
+import base64
+import dataclasses
+import math
+from collections import Counter
+from collections.abc import Sequence
+
+import numpy as np
+
+from sitrep.analysis.seasonal_context import SeasonalContext
+from sitrep.analysis.week import WeekAnalysis
+from sitrep.model import ClusterLabel, Districts
+from sitrep.render import charts, maps
+from sitrep.render.figures import figure_style, figure_to_png, figure_to_svg
+from sitrep.render.narrative import fmt_pct, join_names, plural
+
+__all__ = ["FigureItem", "ReportFigures", "draw_report_figures"]
+
+
+@dataclasses.dataclass(frozen=True)
+class FigureItem:
+    """One figure: inline image data and its words."""
+
+    key: str
+    title: str
+    caption: str
+    alt: str
+    svg_data_uri: str
+    png_data_uri: str
+    svg: bytes = dataclasses.field(repr=False, default=b"")
+    png: bytes = dataclasses.field(repr=False, default=b"")
+
+
+@dataclasses.dataclass(frozen=True)
+class ReportFigures:
+    """All figures of one report, in display order."""
+
+    items: tuple[FigureItem, ...]
+
+    def files(self) -> dict[str, bytes]:
+        """``{name: bytes}`` for the output folder's figures/ subfolder."""
+        out: dict[str, bytes] = {}
+        for item in self.items:
+            out[f"{item.key}.svg"] = item.svg
+            out[f"{item.key}.png"] = item.png
+        return out
+
+
+def _item(key: str, title: str, caption: str, alt: str, fig: object) -> FigureItem:
+    svg = figure_to_svg(fig)  # type: ignore[arg-type]
+    png = figure_to_png(fig)  # type: ignore[arg-type]
+    return FigureItem(
+        key=key,
+        title=title,
+        caption=caption,
+        alt=alt,
+        svg_data_uri="data:image/svg+xml;base64," + base64.b64encode(svg).decode("ascii"),
+        png_data_uri="data:image/png;base64," + base64.b64encode(png).decode("ascii"),
+        svg=svg,
+        png=png,
+    )
+
+
+def _count_phrase(values: Sequence[str], order: Sequence[str]) -> str:
+    counts = Counter(values)
+    return ", ".join(plural(counts[v], "district") + f" {v}" for v in order if counts[v])
+
+
+def draw_report_figures(
+    analysis: WeekAnalysis, seasonal: SeasonalContext, districts: Districts
+) -> ReportFigures:
+    """Draw the trend chart and the four maps of the report."""
+    table = analysis.table
+    order = {d: i for i, d in enumerate(districts.frame["district_id"])}
+    index = [order[d] for d in table["district_id"]]
+    geoms = districts.frame.geometry.iloc[index].reset_index(drop=True)
+    names = list(table["district_name"])
+    week = analysis.week
+    items = []
+    with figure_style():
+        items.append(_trend(analysis, seasonal))
+
+        cuts = analysis.terciles.cuts
+        panels = [(f"Week {w.week}", np.asarray(ranks)) for w, ranks in analysis.recent_terciles]
+        fig = maps.tercile_small_multiples(
+            geoms, panels, cuts, suppressed_label="no data or suppressed"
+        )
+        ranks = np.asarray(analysis.terciles.ranks)
+        labels = {0: "no data", 1: "low", 2: "middle", 3: "high"}
+        counts = _count_phrase([labels[int(r)] for r in ranks], ["low", "middle", "high", "no data"])
+        cut_text = f"cut points {fmt_pct(cuts[0])} and {fmt_pct(cuts[1])}" if cuts else "no cut points (too few districts)"
+        first = analysis.recent_terciles[0][0].week if analysis.recent_terciles else week.week
+        items.append(_item(
+            "terciles",
+            f"ILI% terciles, weeks {first} to {week.week}",
+            f"Each district's ILI% in thirds, on this week's {cut_text} for every panel. "
+            "Hatched districts had no data or too few visits.",
+            f"Small-multiple maps of ILI% terciles for weeks {first} to {week.week} on {cut_text}; "
+            f"in week {week.week}: {counts}.",
+            fig,
+        ))
+
+        classes = [str(c) for c in table["change_class"]]
+        fig = maps.change_map(geoms, classes, title=None)
+        counts = _count_phrase(classes, ["increase", "decrease", "similar", "not assessable"])
+        items.append(_item(
+            "change",
+            f"Change since week {analysis.prior_week.week if analysis.prior_week else week.week - 1}",
+            "Week-over-week change of each district's ILI% against last week's revised value, "
+            "classed by the change test and the minimum meaningful change.",
+            f"Map of week-over-week change classes: {counts}.",
+            fig,
+        ))
+
+        cluster_labels = [str(c) for c in table["cluster_label"]]
+        fig = maps.cluster_map(geoms, cluster_labels, title=None)
+        groups = []
+        for label in (ClusterLabel.HIGH_HIGH, ClusterLabel.LOW_LOW, ClusterLabel.HIGH_LOW, ClusterLabel.LOW_HIGH):
+            members = [n for n, lab in zip(names, cluster_labels, strict=True) if lab == label.value]
+            if members:
+                groups.append(f"{label.value}: {join_names(members, limit=6)}")
+        others = _count_phrase(cluster_labels, ["not significant", "no neighbours", "no data", "not assessable"])
+        items.append(_item(
+            "clusters",
+            "Local Moran's I clusters",
+            "Districts whose ILI% resembles (high-high, low-low) or contrasts with (high-low, low-high) "
+            "their neighbours' more than chance would suggest, after multiple-testing control. "
+            "Districts with no neighbour are never tested.",
+            "Map of Local Moran's I cluster labels. "
+            + ("; ".join(groups) + ". " if groups else "No significant districts. ")
+            + (f"Other districts: {others}." if others else ""),
+            fig,
+        ))
+
+        last = np.array([_display(v, s) for v, s in zip(table["prior_ili_percent"], table["suppressed"], strict=True)])
+        now = np.array([_display(v, s) for v, s in zip(table["ili_percent"], table["suppressed"], strict=True)])
+        fig = maps.comparison_map(
+            geoms, last, now,
+            titles=(f"Week {analysis.prior_week.week if analysis.prior_week else ''} (revised)", f"Week {week.week}"),
+        )
+        finite_now = now[np.isfinite(now)]
+        finite_last = last[np.isfinite(last)]
+        items.append(_item(
+            "comparison",
+            "Last week and this week",
+            "ILI% by district last week (revised) and this week on one shared scale.",
+            "Two maps of district ILI% on one scale: last week from "
+            f"{_range(finite_last)}, this week from {_range(finite_now)}.",
+            fig,
+        ))
+    return ReportFigures(tuple(items))
+
+
+def _display(value: object, suppressed: object) -> float:
+    try:
+        x = float(value)  # type: ignore[arg-type]
+    except (TypeError, ValueError):
+        return math.nan
+    return math.nan if bool(suppressed) else x
+
+
+def _range(values: np.ndarray) -> str:
+    if values.size == 0:
+        return "no data"
+    return f"{fmt_pct(float(values.min()))} to {fmt_pct(float(values.max()))}"
+
+
+def _trend(analysis: WeekAnalysis, seasonal: SeasonalContext) -> FigureItem:
+    weeks = [w for w, _ in seasonal.current_curve]
+    current = np.array([v for _, v in seasonal.current_curve], dtype=float)
+    past = [(label, np.array(values, dtype=float)) for label, values in seasonal.past_curves]
+    thresholds = {}
+    if seasonal.thresholds_available:
+        for name, value in (("epidemic threshold", seasonal.epidemic_threshold), ("medium", seasonal.medium),
+                            ("high", seasonal.high), ("very high", seasonal.very_high)):
+            if value is not None:
+                thresholds[name] = float(value)
+    fig = charts.trend_chart(
+        weeks, current, past, baseline=seasonal.baseline, thresholds=thresholds or None,
+        season_start_week=_season_start(analysis, seasonal),
+    )
+    peaks = [float(np.nanmax(v)) for _, v in past if np.isfinite(v).any()]
+    now = current[-1] if current.size else math.nan
+    alt = (
+        f"Line chart of pooled ILI% by season week. This season ({seasonal.season_label}) is at "
+        f"{fmt_pct(now)} in season week {seasonal.season_week}"
+        + (f"; the {len(past)} past seasons peaked between {fmt_pct(min(peaks))} and {fmt_pct(max(peaks))}" if peaks else "")
+        + (f"; epidemic threshold {fmt_pct(seasonal.epidemic_threshold)}" if seasonal.thresholds_available else "")
+        + (f"; baseline {fmt_pct(seasonal.baseline)}" if seasonal.baseline is not None else "")
+        + "."
+    )
+    return _item(
+        "trend",
+        f"ILI% this season against past seasons",
+        "Pooled ILI% for the jurisdiction by week of the season; this season in bold, past seasons in grey, "
+        "with the seasonal baseline and the epidemic and intensity thresholds.",
+        alt,
+        fig,
+    )
+
+
+def _season_start(analysis: WeekAnalysis, seasonal: SeasonalContext) -> int:
+    start = analysis.week - (seasonal.season_week - 1)
+    return start.week
