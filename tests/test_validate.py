@@ -1,0 +1,498 @@
+"""Stage 2 of validation: value rules on one table and rules against last week's table.
+
+Tables are written with the fixture builders and read with the real reader,
+so every asserted line number is the line in the file (header = 1).
+Thresholds are METHODS.md section 9.4 defaults (common practice).
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import datetime as dt
+from pathlib import Path
+
+import epiweeks
+import numpy as np
+import pandas as pd
+import pytest
+from ingest_fixtures import (
+    HEADER,
+    IDS,
+    NAMES,
+    WEEKS,
+    changed,
+    clean_polygons,
+    clean_rows,
+    line_of,
+    without,
+    write_csv,
+)
+from ingest_fixtures import settings as input_settings
+from scipy import stats
+
+from sitrep.config import ValidationSettings
+from sitrep.ingest.read import read_count_table
+from sitrep.ingest.validate import RULES, validate_against_prior, validate_table
+from sitrep.model import CountTable, Districts, InputFile, Severity
+from sitrep.weeks import EpiWeek, WeekSystem
+
+MMWR, ISO = WeekSystem.MMWR, WeekSystem.ISO
+VS = ValidationSettings()
+
+
+@pytest.fixture(scope="module")
+def districts() -> Districts:
+    return Districts(frame=clean_polygons(), source=InputFile("boundaries", Path("d.gpkg"), "0", 0))
+
+
+_counter = iter(range(10**6))
+
+
+def table(tmp_path: Path, rows, header=HEADER, system=MMWR, **kw) -> CountTable:
+    path = write_csv(tmp_path / f"t{next(_counter)}.csv", rows, header)
+    t, report = read_count_table(path, input_settings(**kw), system)
+    assert t is not None, report.findings
+    return t
+
+
+def rules(report) -> list[str]:
+    return [f.rule for f in report.findings]
+
+
+def one(report, rule: str):
+    hits = [f for f in report.findings if f.rule == rule]
+    assert len(hits) == 1, (rule, report.findings)
+    return hits[0]
+
+
+def test_rule_ids_unique_and_documented() -> None:
+    ids = [r for r, _ in RULES]
+    assert len(ids) == len(set(ids)) and all(desc for _, desc in RULES)
+
+
+def test_clean_table_has_no_findings(tmp_path: Path, districts: Districts) -> None:
+    report = validate_table(
+        table(tmp_path, clean_rows()), districts, VS, today=dt.date(2026, 11, 30)
+    )
+    assert report.findings == ()
+
+
+# ----------------------------------------------------------------------------- single-table errors
+
+
+def test_duplicate_district_week_lists_both_lines(tmp_path: Path, districts: Districts) -> None:
+    rows = clean_rows()
+    extra = list(rows[line_of(rows, "003", WEEKS[2]) - 2])
+    extra[4] = "99"  # same district-week, different values
+    rows = rows + [extra]
+    f = one(validate_table(table(tmp_path, rows), districts, VS), "row-duplicate")
+    first = line_of(clean_rows(), "003", WEEKS[2])
+    assert (f.severity, f.line, f.column, f.district_id) == (
+        Severity.ERROR,
+        26,
+        "district_id",
+        "003",
+    )
+    assert f"lines {first}, 26" in f.message
+
+
+@pytest.mark.parametrize(
+    ("column", "value", "rule", "flag_column"),
+    [
+        ("ili_visits", "700", "count-ili-exceeds-total", "ili_visits"),
+        ("total_visits", "-5", "count-negative", "total_visits"),
+        ("reporting_sites", "-1", "count-negative", "reporting_sites"),
+    ],
+)
+def test_impossible_counts(tmp_path: Path, districts, column, value, rule, flag_column) -> None:
+    rows = changed(clean_rows(), "002", WEEKS[1], column, value)
+    report = validate_table(table(tmp_path, rows), districts, VS)
+    f = one(report, rule)
+    assert (f.severity, f.line, f.column, f.district_id) == (
+        Severity.ERROR,
+        line_of(rows, "002", WEEKS[1]),
+        flag_column,
+        "002",
+    )
+
+
+def test_zero_total_with_ili(tmp_path: Path, districts: Districts) -> None:
+    rows = changed(clean_rows(), "002", WEEKS[1], "total_visits", "0")
+    report = validate_table(table(tmp_path, rows), districts, VS)
+    f = one(report, "count-zero-total")
+    assert (f.severity, f.line, f.column) == (
+        Severity.ERROR,
+        line_of(rows, "002", WEEKS[1]),
+        "total_visits",
+    )
+    # 0 < ili is also > total: both rules name the row
+    assert "count-ili-exceeds-total" in rules(report)
+
+
+def test_zero_total_with_zero_ili_is_fine(tmp_path: Path, districts: Districts) -> None:
+    rows = changed(clean_rows(), "002", WEEKS[1], "total_visits", "0")
+    rows = changed(rows, "002", WEEKS[1], "ili_visits", "0")
+    assert validate_table(table(tmp_path, rows), districts, VS).errors == ()
+
+
+def test_non_integer_counts_in_a_float_frame(tmp_path: Path) -> None:
+    t = table(tmp_path, clean_rows())
+    frame = t.frame.copy()
+    frame["ili_visits"] = frame["ili_visits"].astype(float)
+    frame.loc[3, "ili_visits"] = 12.5
+    report = validate_table(CountTable(frame, t.system, t.source), None, VS)
+    f = one(report, "count-not-integer")
+    assert (f.line, f.column, f.value) == (int(frame.loc[3, "line"]), "ili_visits", "12.5")
+
+
+def test_ids_not_in_boundaries_one_finding_per_id(tmp_path: Path, districts: Districts) -> None:
+    rows = clean_rows()
+    for w in WEEKS[:2]:
+        rows = changed(rows, "001", w, "district_id", "1")  # lost its leading zeros
+    rows = changed(rows, "003", WEEKS[0], "district_id", "0003")
+    rows = changed(rows, "005", WEEKS[0], "district_id", "999")
+    report = validate_table(table(tmp_path, rows), districts, VS)
+    hits = [f for f in report.findings if f.rule == "id-not-in-boundaries"]
+    assert [(f.district_id, f.line, f.severity) for f in hits] == [
+        ("1", 2, Severity.ERROR),
+        ("0003", 4, Severity.ERROR),
+        ("999", 6, Severity.ERROR),
+    ]
+    assert "lines 2, 8" in hits[0].message and "'001'" in hits[0].message
+    assert "'003'" in hits[1].message
+    assert "no similar id" in hits[2].message
+
+
+def test_id_with_spaces_kept_suggests_the_trimmed_id(tmp_path: Path, districts: Districts) -> None:
+    rows = changed(clean_rows(), "003", WEEKS[0], "district_id", "003 ")
+    t = table(tmp_path, rows, strip_id_whitespace=False)
+    f = one(validate_table(t, districts, VS), "id-not-in-boundaries")
+    assert f.district_id == "003 " and "'003'" in f.message
+
+
+def test_district_missing_in_latest_week(tmp_path: Path, districts: Districts) -> None:
+    rows = without(clean_rows(), "005", WEEKS[3])
+    f = one(validate_table(table(tmp_path, rows), districts, VS), "district-missing-latest")
+    assert (f.severity, f.district_id, f.line) == (Severity.WARNING, "005", None)
+
+
+def test_nfd_names_do_not_differ_but_other_names_do(tmp_path: Path, districts: Districts) -> None:
+    import unicodedata
+
+    rows = changed(
+        clean_rows(), "002", WEEKS[0], "district_name", unicodedata.normalize("NFD", NAMES[1])
+    )
+    assert validate_table(table(tmp_path, rows), districts, VS).findings == ()
+    rows = changed(clean_rows(), "004", WEEKS[0], "district_name", "Dunmere North")
+    f = one(validate_table(table(tmp_path, rows), districts, VS), "district-name-differs")
+    assert (f.severity, f.line, f.column) == (
+        Severity.INFO,
+        line_of(rows, "004", WEEKS[0]),
+        "district_name",
+    )
+
+
+def test_mixed_weeks_in_a_weekly_file(tmp_path: Path) -> None:
+    rows = [r for r in clean_rows() if r[2] == WEEKS[3]]
+    assert validate_table(table(tmp_path, rows), None, VS, weekly_file=True).findings == ()
+    rows = rows + [clean_rows()[0]]  # one W44 row slipped in, written on the last line
+    f = one(validate_table(table(tmp_path, rows), None, VS, weekly_file=True), "week-mixed")
+    assert (f.severity, f.line, f.column, f.value) == (Severity.ERROR, 8, "epi_week", "2026-W44")
+
+
+def test_future_week(tmp_path: Path) -> None:
+    t = table(tmp_path, clean_rows())
+    # MMWR 2026-W47 starts Sunday 2026-11-22 (epiweeks.Week(2026, 47).startdate())
+    assert epiweeks.Week(2026, 47).startdate() == dt.date(2026, 11, 22)
+    f = one(validate_table(t, None, VS, today=dt.date(2026, 11, 21)), "week-future")
+    assert (f.severity, f.line, f.value) == (
+        Severity.ERROR,
+        line_of(clean_rows(), "001", WEEKS[3]),
+        "2026-W47",
+    )
+    assert validate_table(t, None, VS, today=dt.date(2026, 11, 22)).findings == ()
+
+
+# ----------------------------------------------------------------------------- single-table warnings
+
+
+def test_week_gap_in_season_to_date_extract(tmp_path: Path) -> None:
+    rows = without(clean_rows(), week=WEEKS[1])
+    f = one(validate_table(table(tmp_path, rows), None, VS), "week-gap")
+    assert (f.severity, f.line, f.column, f.value) == (
+        Severity.WARNING,
+        line_of(rows, "001", WEEKS[2]),
+        "epi_week",
+        "2026-W46",
+    )
+    assert "2026-W45" in f.message
+
+
+def test_mmwr_week_53_is_contiguous(tmp_path: Path) -> None:
+    # epiweeks: MMWR year 2025 has 53 weeks, and Week(2025, 53) + 1 == Week(2026, 1)
+    assert epiweeks.Year(2025).totalweeks() == 53
+    assert epiweeks.Week(2025, 53) + 1 == epiweeks.Week(2026, 1)
+    rows = clean_rows(weeks=["2025-W52", "2025-W53", "2026-W01"])
+    assert validate_table(table(tmp_path, rows), None, VS).findings == ()
+    rows = clean_rows(weeks=["2025-W51", "2025-W52", "2026-W01"])
+    f = one(validate_table(table(tmp_path, rows), None, VS), "week-gap")
+    assert "2025-W53" in f.message
+
+
+def test_iso_week_53_is_contiguous(tmp_path: Path) -> None:
+    # Python stdlib: date(2026, 12, 28).isocalendar() is ISO week 53 of 2026
+    assert dt.date(2026, 12, 28).isocalendar()[:2] == (2026, 53)
+    rows = clean_rows(weeks=["2026-W52", "2026-W53", "2027-W01"])
+    assert validate_table(table(tmp_path, rows, system=ISO), None, VS).findings == ()
+
+
+def test_gap_between_seasons_is_not_flagged(tmp_path: Path) -> None:
+    # season 2025-26 runs to 2026-W39, season 2026-27 starts at 2026-W40 (season_start_week 40)
+    rows = clean_rows(weeks=["2026-W10", "2026-W11", "2026-W40", "2026-W41"])
+    assert validate_table(table(tmp_path, rows), None, VS).findings == ()
+    rows = clean_rows(weeks=["2026-W10", "2026-W12", "2026-W40", "2026-W41"])
+    f = one(validate_table(table(tmp_path, rows), None, VS), "week-gap")
+    assert f.value == "2026-W12" and "2025-26" in f.message
+
+
+def test_rate_column_disagreeing_with_counts(tmp_path: Path) -> None:
+    header = HEADER + ["ili_pct"]
+    rows = [r + [f"{100 * int(r[4]) / int(r[5]):.2f}"] for r in clean_rows()]
+    assert (
+        validate_table(
+            table(tmp_path, rows, header, columns={"rate": "ili_pct"}), None, VS
+        ).findings
+        == ()
+    )
+    k = line_of(rows, "004", WEEKS[2]) - 2
+    rows[k][6] = f"{10 * float(rows[k][6]):.2f}"  # rate column x10 vs counts (RELIABILITY H5)
+    f = one(
+        validate_table(table(tmp_path, rows, header, columns={"rate": "ili_pct"}), None, VS),
+        "rate-mismatch",
+    )
+    assert (f.severity, f.line, f.column, f.district_id) == (
+        Severity.WARNING,
+        k + 2,
+        "ili_pct",
+        "004",
+    )
+
+
+def _spike_rows(last_ili: int) -> list[list[str]]:
+    weeks = [str(EpiWeek(2026, 38) + k) for k in range(9)]
+    rows = clean_rows(weeks=weeks, ids=["001", "002"])
+    # district 002: 8 weeks of ILI% 2.0, 2.1, 1.9, 2.0, 2.2, 1.8, 2.0, 2.1 of 1000 visits
+    for k, ili in enumerate([20, 21, 19, 20, 22, 18, 20, 21, last_ili]):
+        rows = changed(rows, "002", weeks[k], "ili_visits", str(ili))
+        rows = changed(rows, "002", weeks[k], "total_visits", "1000")
+    return rows
+
+
+def test_spike_robust_z(tmp_path: Path) -> None:
+    past = np.array([2.0, 2.1, 1.9, 2.0, 2.2, 1.8, 2.0, 2.1])
+    # reference: median 2.0 and unscaled MAD 0.1 (scipy.stats.median_abs_deviation, scale=1.0)
+    assert np.median(past) == pytest.approx(2.0)
+    assert stats.median_abs_deviation(past, scale=1.0) == pytest.approx(0.1)
+    # 2.6 % -> z = 0.6 / 0.1 = 6 > 5: flagged; 2.4 % -> z = 4: not flagged
+    rows = _spike_rows(26)
+    f = one(validate_table(table(tmp_path, rows), None, VS), "value-spike")
+    assert (f.severity, f.line, f.column, f.district_id) == (
+        Severity.WARNING,
+        line_of(rows, "002", str(EpiWeek(2026, 46))),
+        "ili_visits",
+        "002",
+    )
+    assert "robust z 6.0" in f.message
+    assert validate_table(table(tmp_path, _spike_rows(24)), None, VS).findings == ()
+    # the history file's last week is not the report week: the rule can be switched off
+    assert validate_table(table(tmp_path, rows), None, VS, latest_week_rules=False).findings == ()
+
+
+# ----------------------------------------------------------------------------- against the prior table
+
+
+def prior_and_current(tmp_path: Path, prior_rows=None, current_rows=None, system=MMWR):
+    prior_rows = prior_rows if prior_rows is not None else without(clean_rows(), week=WEEKS[3])
+    current_rows = current_rows if current_rows is not None else clean_rows()
+    return table(tmp_path, current_rows, system=system), table(tmp_path, prior_rows, system=system)
+
+
+def test_clean_pair_has_no_findings(tmp_path: Path) -> None:
+    cur, pri = prior_and_current(tmp_path)
+    assert validate_against_prior(cur, pri, VS).findings == ()
+
+
+def test_week_backwards_or_equal(tmp_path: Path) -> None:
+    same = without(clean_rows(), week=WEEKS[3])
+    cur, pri = prior_and_current(tmp_path, prior_rows=same, current_rows=same)
+    f = one(validate_against_prior(cur, pri, VS), "week-backwards")
+    assert f.severity is Severity.ERROR and f.column == "epi_week"
+    assert f.message.startswith(
+        "this week's table ends at 2026-W46 but last week's already reached 2026-W46"
+    )
+    cur, pri = prior_and_current(tmp_path, prior_rows=clean_rows(), current_rows=same)
+    assert "week-backwards" in rules(validate_against_prior(cur, pri, VS))
+
+
+def test_week_skipped(tmp_path: Path) -> None:
+    prior = without(clean_rows(), week=WEEKS[3])
+    current = without(clean_rows(weeks=WEEKS + ["2026-W48"]), week=WEEKS[3])
+    cur, pri = prior_and_current(tmp_path, prior, current)
+    f = one(validate_against_prior(cur, pri, VS), "week-skipped")
+    assert (f.severity, f.value) == (Severity.WARNING, "2026-W48")
+    assert "over 2 weeks" in f.message
+
+
+@pytest.mark.parametrize(
+    ("system", "prior_weeks", "current_weeks", "skipped"),
+    [
+        # MMWR: 2025 has 53 weeks (epiweeks.Year(2025).totalweeks() == 53)
+        (MMWR, ["2025-W52", "2025-W53"], ["2025-W52", "2025-W53", "2026-W01"], False),
+        (MMWR, ["2025-W51", "2025-W52"], ["2025-W51", "2025-W52", "2026-W01"], True),
+        # ISO: 2026 has 53 weeks (date(2026, 12, 28).isocalendar())
+        (ISO, ["2026-W52", "2026-W53"], ["2026-W52", "2026-W53", "2027-W01"], False),
+        (ISO, ["2026-W51", "2026-W52"], ["2026-W51", "2026-W52", "2027-W01"], True),
+    ],
+)
+def test_week_53_sequencing(tmp_path, system, prior_weeks, current_weeks, skipped) -> None:
+    cur, pri = prior_and_current(
+        tmp_path, clean_rows(prior_weeks), clean_rows(current_weeks), system
+    )
+    report = validate_against_prior(cur, pri, VS)
+    assert ("week-skipped" in rules(report)) is skipped
+    assert "week-backwards" not in rules(report)
+
+
+def test_new_and_dropped_districts(tmp_path: Path) -> None:
+    prior = without(without(clean_rows(), week=WEEKS[3]), "006", WEEKS[2])
+    current = without(clean_rows(), "002", WEEKS[3])
+    cur, pri = prior_and_current(tmp_path, prior, current)
+    report = validate_against_prior(cur, pri, VS)
+    new = one(report, "district-new")
+    assert (new.severity, new.district_id, new.line) == (
+        Severity.WARNING,
+        "006",
+        line_of(current, "006", WEEKS[3]),
+    )
+    dropped = one(report, "district-dropped")
+    assert (dropped.severity, dropped.district_id) == (Severity.WARNING, "002")
+
+
+def test_small_revision_gives_only_the_summary(tmp_path: Path) -> None:
+    # 003 in W45: ILI 18 -> 19 of 707 visits = +0.14 pp, below the 0.5 pp limit
+    current = changed(clean_rows(), "003", WEEKS[1], "ili_visits", "19")
+    cur, pri = prior_and_current(tmp_path, current_rows=current)
+    report = validate_against_prior(cur, pri, VS)
+    assert rules(report) == ["revision-summary"]
+    f = report.findings[0]
+    assert f.severity is Severity.WARNING and f.value == "1"
+    assert "1 cell in 1 row of 1 past week" in f.message and "0.14 pp" in f.message
+
+
+def test_large_revision_is_listed_with_old_and_new_values(tmp_path: Path) -> None:
+    # 003 in W45: ILI 18 -> 90 of 707 visits: 2.55 % -> 12.73 % (H7: several times larger)
+    current = changed(clean_rows(), "003", WEEKS[1], "ili_visits", "90")
+    cur, pri = prior_and_current(tmp_path, current_rows=current)
+    report = validate_against_prior(cur, pri, VS)
+    f = one(report, "revision-large")
+    assert (f.severity, f.line, f.column, f.district_id) == (
+        Severity.WARNING,
+        line_of(current, "003", WEEKS[1]),
+        "ili_visits",
+        "003",
+    )
+    assert "18 -> 90" in f.message and "2.55 -> 12.73" in f.message
+    assert "10.18 pp" in one(report, "revision-summary").message
+
+
+def test_revision_of_total_visits_share(tmp_path: Path) -> None:
+    # 001 in W44: total 600 -> 700 (+16.7 % > 10 %); ILI% 1.67 -> 1.43 (0.24 pp < 0.5)
+    current = changed(clean_rows(), "001", WEEKS[0], "total_visits", "700")
+    cur, pri = prior_and_current(tmp_path, current_rows=current)
+    f = one(validate_against_prior(cur, pri, VS), "revision-large")
+    assert (f.line, f.column) == (2, "total_visits")
+
+
+def test_row_removed_from_a_past_week(tmp_path: Path) -> None:
+    current = without(clean_rows(), "004", WEEKS[1])
+    cur, pri = prior_and_current(tmp_path, current_rows=current)
+    f = one(validate_against_prior(cur, pri, VS), "revision-row-removed")
+    assert (f.severity, f.district_id, f.value) == (Severity.WARNING, "004", "2026-W45")
+
+
+def test_completeness_drop(tmp_path: Path) -> None:
+    # total visits of W47 cut by 55 % (RELIABILITY H5); ILI visits stay below the totals
+    current = clean_rows()
+    for ident in IDS:
+        k = line_of(current, ident, WEEKS[3]) - 2
+        current[k][5] = str(int(current[k][5]) * 45 // 100)
+    cur, pri = prior_and_current(tmp_path, current_rows=current)
+    f = one(validate_against_prior(cur, pri, VS), "completeness-drop")
+    assert (f.severity, f.column) == (Severity.WARNING, "total_visits")
+    assert "may reflect reporting, not activity" in f.message
+
+
+def test_reporting_sites_drop(tmp_path: Path) -> None:
+    current = clean_rows()
+    for ident in IDS:
+        current = changed(current, ident, WEEKS[3], "reporting_sites", "1")
+    cur, pri = prior_and_current(tmp_path, current_rows=current)
+    f = one(validate_against_prior(cur, pri, VS), "completeness-drop")
+    assert f.column == "reporting_sites"
+
+
+def test_stale_resend(tmp_path: Path) -> None:
+    current = clean_rows()
+    old = current[line_of(current, "005", WEEKS[2]) - 2]
+    for col, k in (("reporting_sites", 3), ("ili_visits", 4), ("total_visits", 5)):
+        current = changed(current, "005", WEEKS[3], col, old[k])
+    cur, pri = prior_and_current(tmp_path, current_rows=current)
+    f = one(validate_against_prior(cur, pri, VS), "stale-resend")
+    assert (f.severity, f.line, f.district_id) == (
+        Severity.WARNING,
+        line_of(current, "005", WEEKS[3]),
+        "005",
+    )
+
+
+def test_one_week_files_compare_through_the_prior(tmp_path: Path) -> None:
+    prior = [r for r in clean_rows() if r[2] == WEEKS[2]]
+    current = [r for r in clean_rows() if r[2] == WEEKS[3]]
+    cur, pri = prior_and_current(tmp_path, prior, current)
+    assert validate_against_prior(cur, pri, VS).findings == ()
+    current = changed(current, "002", WEEKS[3], "ili_visits", prior[1][4])
+    current = changed(current, "002", WEEKS[3], "total_visits", prior[1][5])
+    current = changed(current, "002", WEEKS[3], "reporting_sites", prior[1][3])
+    cur, pri = prior_and_current(tmp_path, prior, current)
+    assert rules(validate_against_prior(cur, pri, VS)) == ["stale-resend"]
+
+
+def test_settings_thresholds_are_used(tmp_path: Path) -> None:
+    current = changed(clean_rows(), "003", WEEKS[1], "ili_visits", "19")  # +0.14 pp
+    cur, pri = prior_and_current(tmp_path, current_rows=current)
+    strict = dataclasses.replace(VS, revision_report_pp=0.1)
+    assert "revision-large" in rules(validate_against_prior(cur, pri, strict))
+
+
+def test_findings_are_sorted(tmp_path: Path, districts: Districts) -> None:
+    rows = changed(clean_rows(), "006", WEEKS[3], "ili_visits", "999")
+    rows = changed(rows, "001", WEEKS[0], "district_id", "1")
+    rows = without(rows, "004", WEEKS[3])
+    report = validate_table(table(tmp_path, rows), districts, VS)
+    # file-level findings (no line) first, then by line
+    assert [(f.rule, f.line) for f in report.findings] == [
+        ("district-missing-latest", None),
+        ("id-not-in-boundaries", 2),
+        ("count-ili-exceeds-total", line_of(rows, "006", WEEKS[3])),
+    ]
+
+
+def test_vectorised_paths_on_a_full_season(tmp_path: Path) -> None:
+    # 300 districts x 52 identical weeks: no rule may fire (MAD 0 and x = median gives z = 0)
+    ids = [f"{i:03d}" for i in range(300)]
+    weeks = [str(EpiWeek(2025, 40) + k) for k in range(52)]
+    rows = [[i, "x", w, "3", "10", "600"] for w in weeks for i in ids]
+    t = table(tmp_path, rows)
+    report = validate_table(t, None, VS)
+    assert rules(report) == []
+    assert isinstance(t.frame["week"].dtype, pd.CategoricalDtype)
