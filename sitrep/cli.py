@@ -125,7 +125,6 @@ def _print_findings(report: ValidationReport, stream: object = None) -> None:
 def _cmd_demo(args: argparse.Namespace) -> int:
     import dataclasses
 
-    from sitrep import pipeline
 
     inputs = args.inputs or _demo_inputs()
     config = _load(inputs / "sitrep.toml")

@@ -104,6 +104,10 @@ class ValidationSettings:
     """Warn when total visits or reporting sites fall by more than this share."""
     spike_robust_z: float = 5.0
     """Robust z (|x - median| / MAD over the last 8 weeks) above which a value is flagged."""
+    spike_min_weeks: int = 5
+    """Fewest of the previous 8 weeks with data for the spike rule to run."""
+    spike_mad_floor_pp: float = 0.2
+    """Smallest spread used by the spike rule, in percentage points (common practice)."""
     rate_tolerance_pp: float = 0.05
     """Allowed difference between a supplied rate column and the counts."""
 

@@ -142,7 +142,8 @@ class CountTable:
     """Weekly counts in long form: one row per district and epi week.
 
     ``frame`` columns: ``district_id`` (str), ``district_name`` (str, may be
-    empty), ``week`` (:class:`~sitrep.weeks.EpiWeek`), ``reporting_sites``
+    empty), ``week`` (ordered categorical of :class:`~sitrep.weeks.EpiWeek`),
+    optional ``rate_percent`` (a supplied rate converted to percent), ``reporting_sites``
     (float, NaN when not supplied), ``ili_visits`` and ``total_visits``
     (int64), ``line`` (1-based line in the source file, header = 1).
     Rows are sorted by week, then district id.
@@ -155,12 +156,17 @@ class CountTable:
     @property
     def weeks(self) -> tuple[EpiWeek, ...]:
         """Distinct weeks in the table, oldest first."""
-        return tuple(sorted(set(self.frame["week"])))
+        week = self.frame["week"]
+        if hasattr(week, "cat"):
+            present = week.cat.remove_unused_categories().cat.categories
+            return tuple(sorted(present))
+        return tuple(sorted(set(week)))
 
     @property
     def latest_week(self) -> EpiWeek:
         """The most recent week in the table."""
-        return max(self.frame["week"])
+        week = self.frame["week"]
+        return week.max() if hasattr(week, "cat") and week.cat.ordered else max(week)
 
 
 @dataclasses.dataclass(frozen=True, eq=False)

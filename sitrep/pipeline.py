@@ -16,7 +16,7 @@ from collections.abc import Callable
 from pathlib import Path
 from typing import Any
 
-from sitrep.analysis.seasonal_context import SeasonalContext, seasonal_context
+from sitrep.analysis.seasonal_context import seasonal_context
 from sitrep.analysis.week import WeekAnalysis, analyse_week
 from sitrep.analysis.weights import DistrictGraph, build_graph
 from sitrep.config import Config
@@ -36,8 +36,8 @@ from sitrep.model import CountTable, Districts, InputFile, ValidationReport
 from sitrep.render.context import ReportContext, build_context
 from sitrep.render.draft import render_docx, render_email_body, render_markdown
 from sitrep.render.html import asset_dir, render_html
+from sitrep.render.report_figures import draw_report_figures
 from sitrep.render.results import results_csv, results_json, validation_json
-from sitrep.render.report_figures import ReportFigures, draw_report_figures
 from sitrep.versions import library_versions
 from sitrep.weeks import EpiWeek, WeekSystem
 
@@ -106,10 +106,18 @@ def read_inputs(config: Config, *, today: dt.date | None = None) -> Inputs:
     if settings.history is not None:
         history, found = read_count_table(settings.history, settings, system, role="history")
         report = report.merged(found)
+    start = config.weeks.season_start_week
     if table is not None:
-        report = report.merged(validate_table(table, districts, config.validation, today=today))
+        report = report.merged(
+            validate_table(table, districts, config.validation, today=today, season_start_week=start)
+        )
     if history is not None:
-        report = report.merged(validate_table(history, districts, config.validation, today=today))
+        report = report.merged(
+            validate_table(
+                history, districts, config.validation, today=today, season_start_week=start,
+                latest_week_rules=False,
+            )
+        )
     if table is not None and prior is not None:
         report = report.merged(validate_against_prior(table, prior, config.validation))
     return Inputs(table, prior, history, districts, ValidationReport(_dedupe(report.findings)))
@@ -277,7 +285,7 @@ def _manifest(
         "seed": config.analysis.seed,
         "permutations": config.analysis.permutations,
         "source_date_epoch": source_date_epoch(week.end),
-        "parameters": _relative_paths(config.as_dict(), config.source),
+        "parameters": _parameters(config),
         "versions": versions,
         "inputs": [
             {
@@ -294,6 +302,15 @@ def _manifest(
         },
         "reissue_reason": reissue_reason,
     }
+
+
+def _parameters(config: Config) -> dict[str, Any]:
+    """Every setting, paths relative to the config file; where outputs go is left out
+    (it is where the bundle is), so the same week gives the same manifest anywhere."""
+    params = _relative_paths(config.as_dict(), config.source)
+    params["output"].pop("folder", None)
+    params["output"].pop("archive", None)
+    return params
 
 
 def _relative_paths(value: Any, source: Path | None) -> Any:

@@ -13,8 +13,7 @@ import sys
 from pathlib import Path
 
 import pytest
-
-from conftest import DEMO, ROOT, TODAY, demo_config
+from conftest import DEMO, ROOT, TODAY
 
 pytestmark = pytest.mark.slow
 

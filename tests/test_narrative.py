@@ -67,5 +67,21 @@ def test_cluster_sentence_never_claims_no_clusters_when_not_computable() -> None
 
 def test_threshold_sentence() -> None:
     text = nv.threshold_sentence(pct=2.3, epidemic_threshold=1.9, intensity="low", baseline=2.0)
-    assert text == "This is above the epidemic threshold of 1.9% (intensity: low) and above the seasonal baseline of 2.0%."
+    assert text == "This is at or above the epidemic threshold of 1.9% (intensity: low) and above the seasonal baseline of 2.0%."
     assert nv.threshold_sentence(pct=2.3, epidemic_threshold=None, intensity=None, baseline=None, unavailable_reason="R.") == "R."
+
+
+def test_below_threshold_does_not_print_an_intensity() -> None:
+    text = nv.threshold_sentence(pct=1.2, epidemic_threshold=1.9, intensity="below epidemic threshold", baseline=None)
+    assert text == "This is below the epidemic threshold of 1.9%."
+
+
+def test_clear_but_small_change_is_called_similar_with_the_reason() -> None:
+    text = nv.change_sentence(change_class="similar", **{**BASE, "diff_pp": 0.4}, p_value=0.001, min_change_pp=0.5)
+    assert "similar to 1.8%" in text and "smaller than the 0.5 percentage points" in text
+    assert "rose" not in text
+
+
+def test_quality_highlight_uses_words() -> None:
+    assert nv.quality_highlight("value-spike", 3) == "district values far from their recent weeks (3)"
+    assert nv.quality_highlight("some-new-rule", 1) == "some new rule (1)"

@@ -278,13 +278,14 @@ def test_rate_column_disagreeing_with_counts(tmp_path: Path) -> None:
     )
 
 
-def _spike_rows(last_ili: int) -> list[list[str]]:
+def _spike_rows(last_ili: int, visits_scale: int = 1) -> list[list[str]]:
     weeks = [str(EpiWeek(2026, 38) + k) for k in range(9)]
     rows = clean_rows(weeks=weeks, ids=["001", "002"])
-    # district 002: 8 weeks of ILI% 2.0, 2.1, 1.9, 2.0, 2.2, 1.8, 2.0, 2.1 of 1000 visits
+    # district 002: 8 weeks of ILI% 2.0, 2.1, 1.9, 2.0, 2.2, 1.8, 2.0, 2.1 of 100,000 visits
+    # (binomial SE of 2% at that size is 0.044 pp, below the MAD, so the MAD sets the scale)
     for k, ili in enumerate([20, 21, 19, 20, 22, 18, 20, 21, last_ili]):
-        rows = changed(rows, "002", weeks[k], "ili_visits", str(ili))
-        rows = changed(rows, "002", weeks[k], "total_visits", "1000")
+        rows = changed(rows, "002", weeks[k], "ili_visits", str(ili * 100 // visits_scale))
+        rows = changed(rows, "002", weeks[k], "total_visits", str(100000 // visits_scale))
     return rows
 
 
@@ -293,9 +294,10 @@ def test_spike_robust_z(tmp_path: Path) -> None:
     # reference: median 2.0 and unscaled MAD 0.1 (scipy.stats.median_abs_deviation, scale=1.0)
     assert np.median(past) == pytest.approx(2.0)
     assert stats.median_abs_deviation(past, scale=1.0) == pytest.approx(0.1)
-    # 2.6 % -> z = 0.6 / 0.1 = 6 > 5: flagged; 2.4 % -> z = 4: not flagged
+    # 2.6 % -> z = 0.6 / 0.1 = 6 > 5: flagged; 2.4 % -> z = 4: not flagged (MAD floor 0.1 pp)
+    vs = dataclasses.replace(VS, spike_mad_floor_pp=0.1)
     rows = _spike_rows(26)
-    f = one(validate_table(table(tmp_path, rows), None, VS), "value-spike")
+    f = one(validate_table(table(tmp_path, rows), None, vs), "value-spike")
     assert (f.severity, f.line, f.column, f.district_id) == (
         Severity.WARNING,
         line_of(rows, "002", str(EpiWeek(2026, 46))),
@@ -303,9 +305,17 @@ def test_spike_robust_z(tmp_path: Path) -> None:
         "002",
     )
     assert "robust z 6.0" in f.message
-    assert validate_table(table(tmp_path, _spike_rows(24)), None, VS).findings == ()
+    assert validate_table(table(tmp_path, _spike_rows(24)), None, vs).findings == ()
     # the history file's last week is not the report week: the rule can be switched off
-    assert validate_table(table(tmp_path, rows), None, VS, latest_week_rules=False).findings == ()
+    assert validate_table(table(tmp_path, rows), None, vs, latest_week_rules=False).findings == ()
+    # the default floor (0.2 pp) gives z = 3: not flagged
+    assert validate_table(table(tmp_path, rows), None, VS).findings == ()
+
+
+def test_spike_rule_allows_for_binomial_noise_in_small_districts(tmp_path: Path) -> None:
+    # 1,000 visits: SE of 2% = 100*sqrt(0.02*0.98/1000) = 0.443 pp [HAND], so 2.6% gives z = 1.4
+    vs = dataclasses.replace(VS, spike_mad_floor_pp=0.1)
+    assert validate_table(table(tmp_path, _spike_rows(26, visits_scale=100)), None, vs).findings == ()
 
 
 # ----------------------------------------------------------------------------- against the prior table

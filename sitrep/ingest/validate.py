@@ -209,8 +209,10 @@ def validate_table(
       ``x`` its ILI% (100 * ili / total) and ``m``, ``MAD`` the median and the
       (unscaled) median absolute deviation of its ILI% over the previous 8
       weeks (weeks with total > 0 only; at least ``spike_min_weeks`` of them),
-      flag when ``|x - m| / max(MAD, spike_mad_floor_pp) >
-      settings.spike_robust_z``.
+      flag when ``|x - m| / max(MAD, spike_mad_floor_pp, SE) >
+      settings.spike_robust_z``, SE being the binomial standard error (in
+      percentage points) of a proportion equal to the median at this week's
+      visits, so that small districts' one-visit jumps are not flagged.
 
     Parameters
     ----------
@@ -516,8 +518,8 @@ def _squash_keep(text: str) -> list[str]:
 
 def _spikes(a: _Arrays, settings: ValidationSettings, out: _Out) -> None:
     z_limit = settings.spike_robust_z
-    min_weeks = int(getattr(settings, "spike_min_weeks", 5))
-    floor = float(getattr(settings, "spike_mad_floor_pp", 0.1))
+    min_weeks = int(settings.spike_min_weeks)
+    floor = float(settings.spike_mad_floor_pp)
     last = int(a.ordinal.max())
     window = (a.ordinal >= last - 8) & (a.ordinal <= last) & (a.total > 0)
     if not window.any():
@@ -537,7 +539,12 @@ def _spikes(a: _Arrays, settings: ValidationSettings, out: _Out) -> None:
     med = np.nanmedian(sub, axis=1)
     mad = np.nanmedian(np.abs(sub - med[:, None]), axis=1)
     x = grid[enough, 8]
-    z = np.abs(x - med) / np.maximum(mad, floor)
+    # Binomial noise of a proportion near the median at this week's visits: a small
+    # district's ILI% jumps by whole points from one visit, which is not a data fault.
+    n_now = a.total[row_at_latest[np.flatnonzero(enough)]].astype(float)
+    p_med = np.clip(med / 100.0, 0.005, 0.995)
+    binomial_se = 100.0 * np.sqrt(p_med * (1.0 - p_med) / np.maximum(n_now, 1.0))
+    z = np.abs(x - med) / np.maximum(np.maximum(mad, floor), binomial_se)
     for j in np.flatnonzero(z > z_limit):
         code = np.flatnonzero(enough)[j]
         i = int(row_at_latest[code])

@@ -176,6 +176,9 @@ def build_context(
         prior_week_number=prior.week if prior is not None else week.week - 1,
         revised_from=j.prior_ili_percent_published,
         completeness_drop=completeness_drop,
+        p_value=j.change_p,
+        alpha=config.analysis.change_alpha,
+        min_change_pp=config.analysis.min_change_pp,
     )
     thresholds = nv.threshold_sentence(
         pct=j.ili_percent,
@@ -200,7 +203,7 @@ def build_context(
     groups = []
     for group in transitions.groups_now:
         match = next((c for c in transitions.changes if tuple(c.ids_now) == tuple(group.ids) and c.label is group.label), None)
-        movement = _movement(match) if (match is not None and transitions.compared) else ""
+        movement = _movement(match, names) if (match is not None and transitions.compared) else ""
         groups.append((group.label.value, [names[i] for i in group.ids], movement))
     correction = (
         f"Benjamini–Hochberg false discovery rate q = {config.analysis.fdr_q:g}"
@@ -297,7 +300,7 @@ def build_context(
     )
 
 
-def _movement(change: Any) -> str:
+def _movement(change: Any, names: Mapping[str, str]) -> str:
     kind = change.kind
     before = len(change.ids_before)
     if kind == "appeared":
@@ -307,7 +310,12 @@ def _movement(change: Any) -> str:
     if kind == "shrank":
         return f"down from {nv.plural(before, 'district')} last week"
     if kind == "moved":
-        return "shifted from last week's position"
+        parts = []
+        if change.added:
+            parts.append(f"gained {nv.join_names([names[i] for i in change.added], limit=4)}")
+        if change.removed:
+            parts.append(f"lost {nv.join_names([names[i] for i in change.removed], limit=4)}")
+        return "which since last week has " + " and ".join(parts) if parts else "shifted since last week"
     if kind == "persisted":
         return "unchanged from last week"
     return ""
@@ -327,7 +335,8 @@ def _quality_highlights(validation: ValidationReport) -> list[str]:
     counts: dict[str, int] = {}
     for f in validation.warnings:
         counts[f.rule] = counts.get(f.rule, 0) + 1
-    return [f"{rule} ({n})" for rule, n in sorted(counts.items())][:4]
+    order = sorted(counts.items(), key=lambda item: (-item[1], item[0]))
+    return [nv.quality_highlight(rule, n) for rule, n in order][:4]
 
 
 def _indicators(analysis: WeekAnalysis, seasonal: SeasonalContext, config: Config) -> tuple[IndicatorRow, ...]:

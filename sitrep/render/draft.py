@@ -19,8 +19,14 @@ __all__ = ["render_docx", "render_email_body", "render_markdown"]
 
 
 def render_markdown(context: ReportContext, template_dir: Path | None = None) -> str:
-    """The draft as Markdown (template ``draft.md.j2``)."""
-    return render_text("draft.md.j2", template_dir, c=context)
+    """The draft as Markdown (template ``draft.md.j2``).
+
+    Rendered with escaping on; quotes and ampersands are then restored, since
+    they are harmless in Markdown, while ``<`` and ``>`` stay as entities so a
+    name holding markup shows literally in any Markdown viewer.
+    """
+    text = render_text("draft.md.j2", template_dir, c=context)
+    return text.replace("&#39;", "'").replace("&#34;", '"').replace("&amp;", "&")
 
 
 def render_email_body(context: ReportContext, template_dir: Path | None = None) -> str:

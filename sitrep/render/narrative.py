@@ -20,14 +20,19 @@ from collections.abc import Sequence
 
 __all__ = [
     "NOT_AVAILABLE",
+    "RULE_PHRASES",
     "change_sentence",
     "cluster_sentence",
     "data_quality_sentence",
     "fmt_count",
+    "fmt_interval",
+    "fmt_num",
     "fmt_pct",
     "fmt_pp",
     "join_names",
     "level_sentence",
+    "plural",
+    "quality_highlight",
     "threshold_sentence",
     "tercile_sentence",
 ]
@@ -140,6 +145,9 @@ def change_sentence(
     prior_week_number: int,
     revised_from: float | None = None,
     completeness_drop: bool = False,
+    p_value: float | None = None,
+    alpha: float = 0.05,
+    min_change_pp: float = 0.5,
 ) -> str:
     """Direction of the pooled change versus last week's revised value.
 
@@ -152,7 +160,7 @@ def change_sentence(
     if _finite(revised_from) and _finite(pct_before) and round(revised_from, 1) != round(pct_before, 1):
         revised = f" (revised from {fmt_pct(revised_from)} as late reports arrived)"
     elif _finite(pct_before):
-        revised = " (revised figures)"
+        revised = " (as revised this week)"
     interval = (
         f"; 95% CI of the change {fmt_num(low_pp)} to {fmt_num(high_pp)} percentage points"
         if _finite(low_pp) and _finite(high_pp)
@@ -170,6 +178,12 @@ def change_sentence(
                 " reflect missing reports rather than less illness."
             )
         return text
+    if _finite(p_value) and p_value < alpha and _finite(diff_pp) and abs(diff_pp) < min_change_pp:  # type: ignore[operator,arg-type]
+        return (
+            f"This is similar to {before}{revised}: the change of {fmt_pp(diff_pp)} is smaller "
+            f"than the {min_change_pp:g} percentage points this report treats as a meaningful "
+            f"change{interval}."
+        )
     return (
         f"This is similar to {before}{revised}: the change of {fmt_pp(diff_pp)} is within "
         f"what week-to-week variation would produce{interval}."
@@ -187,9 +201,9 @@ def threshold_sentence(
     """Level against the seasonal baseline and the epidemic / intensity thresholds."""
     parts = []
     if _finite(epidemic_threshold):
-        side = "above" if pct >= epidemic_threshold else "below"  # type: ignore[operator]
+        side = "at or above" if pct >= epidemic_threshold else "below"  # type: ignore[operator]
         text = f"This is {side} the epidemic threshold of {fmt_pct(epidemic_threshold)}"
-        if intensity:
+        if intensity and side != "below":
             text += f" (intensity: {intensity})"
         parts.append(text)
     if _finite(baseline):
@@ -249,6 +263,30 @@ def cluster_sentence(
                 + (f", {movement}" if movement else "")
             )
     return "Local Moran's I found " + "; ".join(parts) + f" ({correction})."
+
+
+RULE_PHRASES = {
+    "revision-summary": "past weeks revised as late reports arrived",
+    "revision-large": "large revisions to past weeks",
+    "revision-row-removed": "past rows removed",
+    "value-spike": "district values far from their recent weeks",
+    "completeness-drop": "a fall in reporting completeness",
+    "district-missing-latest": "districts missing this week",
+    "district-new": "new districts",
+    "district-dropped": "districts that stopped reporting",
+    "week-skipped": "a skipped week",
+    "week-gap": "missing weeks in the extract",
+    "rate-mismatch": "supplied rates that disagree with the counts",
+    "stale-resend": "rows identical to the previous week",
+    "geometry-repaired": "repaired boundary shapes",
+    "column-optional-missing": "optional columns missing",
+}
+"""Plain words for validation rule ids in the key messages (ids not listed appear as they are)."""
+
+
+def quality_highlight(rule: str, count: int) -> str:
+    """``('value-spike', 3) -> 'district values far from their recent weeks (3)'``."""
+    return f"{RULE_PHRASES.get(rule, rule.replace('-', ' '))} ({count})"
 
 
 def data_quality_sentence(*, n_warnings: int, highlights: Sequence[str]) -> str:

@@ -200,7 +200,7 @@ def _trend(analysis: WeekAnalysis, seasonal: SeasonalContext) -> FigureItem:
     )
     return _item(
         "trend",
-        f"ILI% this season against past seasons",
+        "ILI% this season against past seasons",
         "Pooled ILI% for the jurisdiction by week of the season; this season in bold, past seasons in grey, "
         "with the seasonal baseline and the epidemic and intensity thresholds.",
         alt,
