@@ -22,6 +22,7 @@ from sitrep.analysis.weights import DistrictGraph, build_graph
 from sitrep.config import Config
 from sitrep.deliver.archive import (
     Bundle,
+    next_version,
     reproducible_env,
     source_date_epoch,
     write_bundle,
@@ -217,6 +218,7 @@ def build(
             config=config,
             versions=versions,
             inputs=inputs.files,
+            reissue=_reissue(config, week, reissue_reason),
         )
         html = render_html(context, config.report.template_dir)
         pdf_html = render_html(context, config.report.template_dir, for_pdf=True)
@@ -266,6 +268,13 @@ def build(
         log(f"archived bundle {bundle.path}")
     written = write_outputs(out_dir or config.output.folder, files)
     return RunResult(week, inputs.validation, written, bundle, analysis, context)
+
+
+def _reissue(config: Config, week: EpiWeek, reason: str | None) -> tuple[int, str] | None:
+    """(version being written, reason) for a reissue; None for a first issue."""
+    if reason is None or config.output.archive is None:
+        return None
+    return next_version(config.output.archive, config.report.jurisdiction, str(week)), reason
 
 
 def _manifest(

@@ -182,6 +182,8 @@ def test_second_build_of_the_same_week_refuses_then_reissues(demo_build) -> None
     assert again.bundle is not None and again.bundle.version == 2
     manifest = json.loads((again.bundle.path / "manifest.json").read_text())
     assert manifest["reissue"]["supersedes"] == "v1"
+    reissued = (again.bundle.path / "report.html").read_text(encoding="utf-8")
+    assert "it supersedes version 1. Reason: late reports from two districts" in reissued
     assert (result.bundle.path / "report.pdf").is_file()
 
 

@@ -103,6 +103,8 @@ class ReportContext:
     inputs: tuple[tuple[str, str, str], ...]
     plain_sections: tuple[tuple[str, str], ...]
     """(heading, plain-language paragraph) for the communications draft."""
+    reissue_note: str = ""
+    """Set on a reissued report: which version this is, what it supersedes and why."""
 
 
 CAUTIONS = (
@@ -147,6 +149,7 @@ def build_context(
     config: Config,
     versions: Mapping[str, str],
     inputs: Sequence[InputFile],
+    reissue: tuple[int, str] | None = None,
 ) -> ReportContext:
     """Assemble the report context from the week's results (pure)."""
     week = analysis.week
@@ -297,6 +300,12 @@ def build_context(
         versions=tuple(sorted(versions.items())),
         inputs=tuple((f.role, f.path.name, f.sha256) for f in inputs),
         plain_sections=plain,
+        reissue_note=(
+            f"This is version {reissue[0]} of the week {week.week} report; it supersedes version "
+            f"{reissue[0] - 1}. Reason: {reissue[1]}"
+            if reissue
+            else ""
+        ),
     )
 
 

@@ -110,7 +110,7 @@ def draw_report_figures(
         ))
 
         classes = [str(c) for c in table["change_class"]]
-        fig = maps.change_map(geoms, classes, title=None)
+        fig = maps.change_map(geoms, classes, title=None, width_cm=8.4)
         counts = _count_phrase(classes, ["increase", "decrease", "similar", "not assessable"])
         items.append(_item(
             "change",
@@ -122,7 +122,7 @@ def draw_report_figures(
         ))
 
         cluster_labels = [str(c) for c in table["cluster_label"]]
-        fig = maps.cluster_map(geoms, cluster_labels, title=None)
+        fig = maps.cluster_map(geoms, cluster_labels, title=None, width_cm=8.4)
         groups = []
         for label in (ClusterLabel.HIGH_HIGH, ClusterLabel.LOW_LOW, ClusterLabel.HIGH_LOW, ClusterLabel.LOW_HIGH):
             members = [n for n, lab in zip(names, cluster_labels, strict=True) if lab == label.value]
