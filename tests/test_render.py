@@ -1,0 +1,103 @@
+"""Templates and rendering: strict, escaping, overridable; thresholds explained when unavailable."""
+
+from __future__ import annotations
+
+import dataclasses
+import re
+from pathlib import Path
+
+import jinja2
+import pytest
+
+from conftest import DEMO, TODAY, demo_config
+from sitrep.errors import RenderError
+from sitrep.render import html as render_html_module
+from sitrep.render.draft import render_markdown
+
+TEMPLATES = Path(__file__).resolve().parent.parent / "templates"
+
+
+def test_every_environment_escapes_and_is_strict() -> None:
+    env = render_html_module.environment()
+    assert env.autoescape is True
+    assert env.undefined is jinja2.StrictUndefined
+
+
+def test_templates_never_mark_data_safe() -> None:
+    for path in sorted(TEMPLATES.iterdir()):
+        if path.is_file():
+            text = path.read_text(encoding="utf-8")
+            assert "|safe" not in text.replace(" ", ""), path
+            assert "Markup(" not in text and "autoescape false" not in text.lower(), path
+    for path in sorted((Path(__file__).resolve().parent.parent / "sitrep").rglob("*.py")):
+        text = path.read_text(encoding="utf-8")
+        assert "autoescape=False" not in text and "Markup(" not in text, path
+
+
+def test_missing_field_fails_loudly(tmp_path: Path, demo_build) -> None:  # type: ignore[no-untyped-def]
+    _, result, _ = demo_build
+    (tmp_path / "draft.md.j2").write_text("Week {{ c.week_nmber }}\n", encoding="utf-8")
+    with pytest.raises(RenderError, match="week_nmber"):
+        render_markdown(result.context, tmp_path)
+
+
+def test_custom_template_folder_overrides_one_file(tmp_path: Path, demo_build) -> None:  # type: ignore[no-untyped-def]
+    _, result, _ = demo_build
+    (tmp_path / "draft.md.j2").write_text("Custom draft for {{ c.jurisdiction }}\n", encoding="utf-8")
+    assert render_markdown(result.context, tmp_path) == "Custom draft for Province of Quillmarsh\n"
+    # the report itself still comes from the packaged template
+    assert "<h1>" in render_html_module.render_html(result.context, tmp_path)
+    with pytest.raises(RenderError, match="does not exist"):
+        render_markdown(result.context, tmp_path / "nope")
+
+
+def test_letter_page_size(demo_build) -> None:  # type: ignore[no-untyped-def]
+    _, result, _ = demo_build
+    letter = dataclasses.replace(result.context, page_size="Letter")
+    assert "size: Letter;" in render_html_module.render_html(letter, for_pdf=True)
+    assert "size: A4;" in render_html_module.render_html(result.context, for_pdf=True)
+
+
+def test_pdf_html_embeds_the_shipped_font(demo_build) -> None:  # type: ignore[no-untyped-def]
+    _, result, _ = demo_build
+    text = render_html_module.render_html(result.context, for_pdf=True)
+    assert text.count("src: url(data:font/ttf;base64,") == 2
+    assert "src: url(data:font/ttf" not in render_html_module.render_html(result.context)
+
+
+def test_every_figure_has_alt_text_from_the_numbers(demo_build) -> None:  # type: ignore[no-untyped-def]
+    _, result, _ = demo_build
+    figures = {f.key: f for f in result.context.figures}
+    assert set(figures) == {"trend", "terciles", "change", "clusters", "comparison"}
+    table = result.analysis.table
+    n_increase = int((table["change_class"] == "increase").sum())
+    assert f"{n_increase} district{'s' if n_increase != 1 else ''} increase" in figures["change"].alt
+    cuts = result.analysis.terciles.cuts
+    assert f"{cuts[0]:.1f}%" in figures["terciles"].alt and f"{cuts[1]:.1f}%" in figures["terciles"].alt
+    for figure in figures.values():
+        assert figure.svg.startswith(b"<?xml") and figure.png.startswith(b"\x89PNG")
+
+
+@pytest.mark.slow
+def test_one_past_season_says_which_thresholds_are_missing(tmp_path: Path) -> None:
+    """With a single past season, thresholds are 'not available' with the reason, never 0."""
+    from sitrep import pipeline
+
+    lines = (DEMO / "history.csv").read_text(encoding="utf-8").splitlines()
+    keep = [lines[0]] + [
+        line for line in lines[1:]
+        if re.search(r",(2025-W(4\d|5[0-3])|2026-W(0\d|[1-3]\d)),", line)
+    ]
+    history = tmp_path / "history_one_season.csv"
+    history.write_text("\n".join(keep) + "\n", encoding="utf-8")
+    config = demo_config(tmp_path)
+    config = dataclasses.replace(config, input=dataclasses.replace(config.input, history=history))
+    result = pipeline.build(config, today=TODAY, archive=False)
+    context = result.context
+    threshold_row = next(r for r in context.indicators if r.label == "Epidemic threshold")
+    assert threshold_row.value == "not available"
+    assert "1 past season" in threshold_row.note and "at least 2" in threshold_row.note
+    baseline_row = next(r for r in context.indicators if r.label == "Seasonal baseline")
+    assert baseline_row.value == "not available"
+    assert "0.0%" not in context.key_messages[1]
+    assert "not available" in context.key_messages[1].lower()
