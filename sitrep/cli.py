@@ -16,6 +16,7 @@ Heavy libraries are imported only inside the verbs that need them, so
 from __future__ import annotations
 
 import argparse
+import datetime as dt
 import json
 import sys
 from collections.abc import Sequence
@@ -58,6 +59,14 @@ def _demo_inputs() -> Path:
     raise ConfigError("demo_inputs/sitrep.toml not found; run from the sitrep source folder or pass --inputs")
 
 
+def _date_arg(text: str) -> dt.date:
+    """argparse type for ``--today``: an ISO date such as 2026-11-30."""
+    try:
+        return dt.date.fromisoformat(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a date like 2026-11-30, got {text!r}") from None
+
+
 def _parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(
         prog="sitrep",
@@ -84,23 +93,51 @@ def _parser() -> argparse.ArgumentParser:
     p.add_argument("--no-archive", action="store_true", help="write the output folder only")
 
     p = verb("check", "validate the inputs only; print the findings")
+    p.epilog = (
+        "exit codes: 0 no error-level finding (warnings may be listed) · 1 at least one error\n"
+        "(a build would be blocked) or an unreadable input · 2 usage or configuration error"
+    )
     p.add_argument("--config", type=Path, required=True, help="the jurisdiction's TOML configuration")
     p.add_argument("--table", type=Path, default=None, help="this week's table (overrides input.table)")
     p.add_argument("--prior", type=Path, default=None, help="last week's table (overrides input.prior_table)")
+    p.add_argument("--today", type=_date_arg, default=None, metavar="YYYY-MM-DD",
+                   help="the day the future-week rule compares with (default: today)")
     p.add_argument("--json", action="store_true", help="print the findings as JSON")
 
     p = verb("verify", "recompute every checksum of an archived bundle")
+    p.epilog = (
+        "exit codes: 0 every checksum matches · 1 a file is missing, changed or extra ·\n"
+        "2 the path is not a bundle folder"
+    )
     p.add_argument("bundle", type=Path, help="bundle folder, e.g. ARCHIVE/<jurisdiction>/2026-W47/v1")
 
     p = verb("send", "e-mail an archived bundle's PDF")
+    p.epilog = (
+        "exit codes: 0 sent, or written as <bundle>.eml with --dry-run · 1 the archived run was\n"
+        "blocked by validation (nothing is sent) · 2 usage or configuration error (e-mail disabled,\n"
+        "no recipients, another jurisdiction's bundle) · 3 delivery failed, partial or unknown, the\n"
+        "bundle fails verification, or it was already sent: a second send is refused unless --resend.\n"
+        "After 'unknown' (connection lost once the message was transmitted) ask a recipient whether\n"
+        "it arrived before using --resend."
+    )
     p.add_argument("bundle", type=Path, help="bundle folder")
     p.add_argument("--config", type=Path, required=True, help="the jurisdiction's TOML configuration")
     p.add_argument("--dry-run", action="store_true", help="write the message as .eml instead of sending")
     p.add_argument("--resend", action="store_true", help="send again although the bundle was sent")
 
     p = verb("run", "the scheduled Monday job: newest extract in the inbox -> build -> archive -> send")
+    p.epilog = (
+        "The report week is the latest week of the newest extract matching input.inbox_pattern in\n"
+        "input.inbox; the extract with the next older week is last week's table. A week already\n"
+        "archived and sent is left alone (exit 0, 'nothing to do'); archived but unsent is sent.\n"
+        "exit codes: 0 done or nothing to do · 1 blocked by validation or unreadable/ambiguous\n"
+        "extracts (nothing archived or sent) · 2 usage or configuration error · 3 delivery failed,\n"
+        "partial or unknown (see the message; nothing is resent automatically)"
+    )
     p.add_argument("--config", type=Path, required=True, help="the jurisdiction's TOML configuration")
     p.add_argument("--dry-run", action="store_true", help="write the e-mail as .eml instead of sending")
+    p.add_argument("--today", type=_date_arg, default=None, metavar="YYYY-MM-DD",
+                   help="the day the future-week rule compares with (default: today)")
     return parser
 
 
@@ -111,15 +148,32 @@ def _load(path: Path) -> Config:
 
 
 def _print_findings(report: ValidationReport, stream: object = None) -> None:
+    """Print findings as a table: severity, rule, file:line, column, district, message."""
     out = stream or sys.stdout
     if not report.findings:
-        print("no findings: the table passed every check", file=out)  # type: ignore[arg-type]
+        print("no findings: the inputs passed every check", file=out)  # type: ignore[arg-type]
         return
-    for f in report.findings:
-        where = f.location() or "-"
-        district = f" [{f.district_id}]" if f.district_id else ""
-        print(f"{f.severity.value.upper():7} {f.rule:28} {where}{district}: {f.message}", file=out)  # type: ignore[arg-type]
-    print(f"{len(report.errors)} error(s), {len(report.warnings)} warning(s)", file=out)  # type: ignore[arg-type]
+    header = ("severity", "rule", "file:line", "column", "district", "message")
+    rows = [
+        (
+            f.severity.value,
+            f.rule,
+            (f.file or "-") + (f":{f.line}" if f.line is not None else ""),
+            f.column or "-",
+            f.district_id or "-",
+            f.message,
+        )
+        for f in report.findings
+    ]
+    widths = [max(len(row[i]) for row in (header, *rows)) for i in range(5)]
+    for row in (header, *rows):
+        cells = "  ".join(cell.ljust(width) for cell, width in zip(row[:5], widths, strict=True))
+        print(f"{cells}  {row[5]}", file=out)  # type: ignore[arg-type]
+    notes = len(report.findings) - len(report.errors) - len(report.warnings)
+    summary = f"{len(report.errors)} error(s), {len(report.warnings)} warning(s), {notes} note(s)"
+    if report.blocked:
+        summary += ": blocked, a build would stop here and nothing would be archived or sent"
+    print(summary, file=out)  # type: ignore[arg-type]
 
 
 def _cmd_demo(args: argparse.Namespace) -> int:
@@ -177,10 +231,15 @@ def _cmd_check(args: argparse.Namespace) -> int:
         overrides["prior_table"] = args.prior.resolve()
     if overrides:
         config = dataclasses.replace(config, input=dataclasses.replace(config.input, **overrides))
-    report = pipeline.check(config)
+    report = pipeline.check(config, today=args.today or dt.date.today())
     if args.json:
-        print(json.dumps({"blocked": report.blocked, "findings": [f.as_dict() for f in report.findings]},
-                         indent=2, ensure_ascii=False))
+        doc = {
+            "blocked": report.blocked,
+            "errors": len(report.errors),
+            "warnings": len(report.warnings),
+            "findings": [f.as_dict() for f in report.findings],
+        }
+        print(json.dumps(doc, indent=2, ensure_ascii=False))
     else:
         _print_findings(report)
     return EXIT_BLOCKED if report.blocked else EXIT_OK
@@ -189,28 +248,70 @@ def _cmd_check(args: argparse.Namespace) -> int:
 def _cmd_verify(args: argparse.Namespace) -> int:
     from sitrep.deliver.archive import verify_bundle
 
+    if not args.bundle.is_dir():
+        raise ConfigError(f"{args.bundle} is not a folder; pass ARCHIVE/<jurisdiction>/<year>-W<ww>/v<k>")
     result = verify_bundle(args.bundle)
     for label, names in (("missing", result.missing), ("changed", result.changed), ("extra", result.extra)):
         for name in names:
             print(f"{label}: {name}")
+    if not result.ok:
+        for problem in result.problems:
+            print(f"  {problem}")
     print(f"{'OK' if result.ok else 'FAILED'}: {result.checked} file(s) checked in {args.bundle}")
     return EXIT_OK if result.ok else EXIT_BLOCKED
+
+
+def _resend_advice(bundle: Path, config_path: Path) -> str:
+    return (
+        "the message may or may not have been delivered. Check with a recipient whether it arrived "
+        f"before running `sitrep send {bundle} --config {config_path} --resend`; resending now "
+        "could deliver it twice"
+    )
 
 
 def _cmd_send(args: argparse.Namespace) -> int:
     from sitrep.delivery_jobs import send_archived
 
-    outcome = send_archived(_load(args.config), args.bundle, dry_run=args.dry_run, resend=args.resend)
-    print(f"{outcome.status}: {outcome.detail}")
-    return EXIT_OK if outcome.status == "sent" or args.dry_run else EXIT_DELIVERY
+    try:
+        outcome = send_archived(_load(args.config), args.bundle, dry_run=args.dry_run, resend=args.resend)
+    except ValidationFailed as exc:
+        if exc.report is not None:
+            _print_findings(exc.report, sys.stderr)
+        raise
+    if outcome.status == "dry-run":
+        print(f"dry run: {outcome.detail}; nothing was sent")
+        return EXIT_OK
+    print(f"{outcome.status}: {outcome.detail}; Message-ID {outcome.message_id}")
+    if outcome.accepted:
+        print(f"accepted: {', '.join(outcome.accepted)}")
+    if outcome.status == "sent":
+        return EXIT_OK
+    if outcome.status == "unknown":
+        print(f"delivery unknown: {_resend_advice(args.bundle, args.config)}", file=sys.stderr)
+    elif outcome.status == "partial":
+        print(
+            f"partly delivered: refused {', '.join(sorted(outcome.refused))}; fix [email] recipients, "
+            "then use --resend (the accepted recipients get a second copy)",
+            file=sys.stderr,
+        )
+    else:
+        print(f"delivery failed: {outcome.detail}", file=sys.stderr)
+    return EXIT_DELIVERY
 
 
 def _cmd_run(args: argparse.Namespace) -> int:
     from sitrep.delivery_jobs import scheduled_run
 
-    message = scheduled_run(_load(args.config), dry_run=args.dry_run, log=lambda m: print(m))
-    print(message)
-    return EXIT_OK
+    try:
+        report = scheduled_run(
+            _load(args.config), dry_run=args.dry_run, today=args.today, log=lambda m: print(m)
+        )
+    except ValidationFailed as exc:
+        if exc.report is not None:
+            _print_findings(exc.report, sys.stderr)
+        raise
+    print(report.message, file=sys.stdout if report.ok else sys.stderr)
+    return EXIT_OK if report.ok else EXIT_DELIVERY
 
 
 COMMANDS = {
