@@ -103,6 +103,8 @@ class ReportContext:
     inputs: tuple[tuple[str, str, str], ...]
     plain_sections: tuple[tuple[str, str], ...]
     """(heading, plain-language paragraph) for the communications draft."""
+    analysis_notes: tuple[str, ...] = ()
+    """What the statistics left out or could not do this week (e.g. districts without data)."""
     reissue_note: str = ""
     """Set on a reissued report: which version this is, what it supersedes and why."""
 
@@ -258,7 +260,7 @@ def build_context(
         ("Week-over-week change", f"This week against last week's revised value, in percentage points, with a Newcombe hybrid score interval. Test: {a.change_test}; a change is called an increase or decrease only when p < {a.change_alpha:g} and the change is at least {a.min_change_pp:g} percentage points."),
         ("Terciles", "Cut points are the 1/3 and 2/3 quantiles (linear interpolation) of this week's non-suppressed district values; classes are closed on the right and tied values share a class. The same cut points class the earlier weeks in the small multiples."),
         ("Spatial weights", f"{a.weights.title()} contiguity, row-standardised" + (f", islands linked to their {a.link_islands_k} nearest districts" if a.link_islands_k else "") + f"; {analysis.graph.n_links} links; districts with no neighbour: {nv.join_names([names.get(i, i) for i in analysis.graph.islands], limit=20)} (never tested)."),
-        ("Local Moran's I", f"esda {clusters.esda_version} Moran_Local on ILI%, {clusters.permutations:,} conditional permutations, seed {clusters.seed}; pseudo p-value {clusters.alternative}. Multiple testing: {correction}. Districts without data are left out of the statistic."),
+        ("Local Moran's I", f"esda {clusters.esda_version} Moran_Local on ILI%, {clusters.permutations:,} conditional permutations, seed {clusters.seed}; pseudo p-value {clusters.alternative}. Multiple testing: {correction}; a district is flagged when its adjusted p-value is at most the threshold. Local values use esda's scaling (n−1)·z_i·(Wz)_i/Σz², which changes neither p-values nor quadrants. Districts without data or with too few visits are left out of the statistic; districts with no neighbour are never tested (a permutation test cannot be run for them)."),
         ("Global Moran's I", _global_text(analysis)),
         ("Seasonal thresholds", seasonal.method_note),
         ("Week numbering", f"{week.system.label}; season {seasonal.season_label} starts in week {config.weeks.season_start_week}. Some years have a week 53."),
@@ -300,6 +302,7 @@ def build_context(
         versions=tuple(sorted(versions.items())),
         inputs=tuple((f.role, f.path.name, f.sha256) for f in inputs),
         plain_sections=plain,
+        analysis_notes=tuple(dict.fromkeys(analysis.notes)),
         reissue_note=(
             f"This is version {reissue[0]} of the week {week.week} report; it supersedes version "
             f"{reissue[0] - 1}. Reason: {reissue[1]}"
