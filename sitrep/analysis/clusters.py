@@ -51,7 +51,7 @@ QUADRANT_LABELS: dict[int, ClusterLabel] = {
     3: ClusterLabel.LOW_LOW,
     4: ClusterLabel.HIGH_LOW,
 }
-"""esda's quadrant codes (PySAL scheme, ``geoda_quads=False``) to labels: the one registry."""
+"""esda's default quadrant codes (documented in its Moran_Local docstring) to labels: the one registry."""
 
 SIGNIFICANT_LABELS: frozenset[ClusterLabel] = frozenset(QUADRANT_LABELS.values())
 """Labels that mark a significant district (a cluster core or a spatial outlier)."""
