@@ -69,6 +69,8 @@ class InputSettings:
     boundaries_name_column: str | None = "district_name"
     boundaries_crs: str | None = None
     """Declare the CRS when the file carries none (never guessed)."""
+    boundaries_extent: tuple[float, float, float, float] | None = None
+    """Expected extent ``[west, south, east, north]`` in WGS 84 degrees; the layer must lie inside."""
     inbox: Path | None = None
     """Folder searched by ``sitrep run`` for the newest extract."""
     inbox_pattern: str = "*.csv"
@@ -298,6 +300,15 @@ def _coerce(hint: Any, value: Any, key: str, base_dir: Path) -> Any:
         _reject_control(key, value)
         p = Path(value).expanduser()
         return p if p.is_absolute() else (base_dir / p)
+    if origin is tuple and get_args(hint) and all(a is float for a in get_args(hint)):
+        size = len(get_args(hint))
+        if (
+            not isinstance(value, list)
+            or len(value) != size
+            or not all(isinstance(v, (int, float)) and not isinstance(v, bool) for v in value)
+        ):
+            raise ConfigError(f"{key} must be a list of {size} numbers, got {value!r}")
+        return tuple(float(v) for v in value)
     if origin is tuple:
         if isinstance(value, str):
             value = [value]
@@ -361,6 +372,14 @@ def _check_ranges(c: Config) -> None:
         raise ConfigError(f"input.delimiter must be one character, got {c.input.delimiter!r}")
     if c.input.delimiter == c.input.decimal:
         raise ConfigError("input.delimiter and input.decimal must differ")
+    if c.input.boundaries_extent is not None:
+        west, south, east, north = c.input.boundaries_extent
+        if not (-180 <= west < east <= 180 and -90 <= south < north <= 90):
+            raise ConfigError(
+                "input.boundaries_extent must be [west, south, east, north] in degrees with "
+                f"west < east within -180..180 and south < north within -90..90, got "
+                f"{list(c.input.boundaries_extent)!r}"
+            )
     if c.weeks.report_week is not None:
         from sitrep.weeks import EpiWeek, WeekSystem
 

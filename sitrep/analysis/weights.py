@@ -124,7 +124,9 @@ def build_graph(
     edge is needed; vertex-set method, ``strict=False``, which assumes a clean
     coverage) or :meth:`~libpysal.graph.Graph.build_knn` on each district's
     ``representative_point()`` (always inside the polygon; euclidean distance
-    in the frame's CRS). Weights are binary, then row-standardised
+    in the frame's CRS, or in metres in the frame's UTM zone, from
+    ``GeoDataFrame.estimate_utm_crs()``, when the CRS is geographic: degrees of
+    longitude and latitude are not comparable lengths). Weights are binary, then row-standardised
     (``transform("r")``), so w_ij = 1/|N(i)| for j in N(i).
 
     Parameters
@@ -140,8 +142,9 @@ def build_graph(
     link_islands_k : int, default 0
         When positive, link each island (district without neighbour under
         ``kind``) to its ``link_islands_k`` nearest districts, measured
-        boundary to boundary (``GeoSeries.distance``; ties broken by id), in
-        both directions. 0 leaves islands unlinked.
+        boundary to boundary (``GeoSeries.distance``, in metres as for knn
+        when the CRS is geographic; ties broken by id), in both directions.
+        0 leaves islands unlinked.
 
     Returns
     -------
@@ -196,6 +199,10 @@ def build_graph(
 
     indexed = frame.set_axis(list(ids), axis=0)
     notes: list[str] = []
+    metric = indexed
+    if (kind == "knn" or link_islands_k > 0) and frame.crs is not None and frame.crs.is_geographic:
+        metric, note = _projected(indexed)
+        notes.append(note)
     from libpysal.graph import Graph
 
     with warnings.catch_warnings():
@@ -204,7 +211,7 @@ def build_graph(
         warnings.filterwarnings("ignore", message=r".*disconnected.*", category=UserWarning)
         try:
             if kind == "knn":
-                points = indexed.geometry.representative_point()
+                points = metric.geometry.representative_point()
                 raw = Graph.build_knn(points, k=k)
             else:
                 raw = Graph.build_contiguity(indexed.geometry, rook=(kind == "rook"))
@@ -217,7 +224,7 @@ def build_graph(
     if islands and link_islands_k > 0:
         sets = {i: set(neighbours[i]) for i in ids}
         for island in islands:
-            targets = _nearest(indexed, island, link_islands_k)
+            targets = _nearest(metric, island, link_islands_k)
             linked.append((island, targets))
             for t in targets:
                 sets[island].add(t)
@@ -233,8 +240,6 @@ def build_graph(
             f"{len(islands)} district(s) have no {kind} neighbour and are not tested for "
             f"clusters: {', '.join(islands)}"
         )
-    if kind == "knn" and frame.crs is not None and frame.crs.is_geographic:
-        notes.append("nearest neighbours were measured in degrees (geographic CRS)")
     return _assemble(ids, neighbours, kind, islands, tuple(linked), (), tuple(notes))
 
 
@@ -346,6 +351,23 @@ def _neighbours_of(g: Graph, ids: tuple[str, ...]) -> dict[str, tuple[str, ...]]
         if w != 0 and f != t:
             sets[f].add(t)
     return {i: tuple(sorted(sets[i])) for i in ids}
+
+
+def _projected(frame: gpd.GeoDataFrame) -> tuple[gpd.GeoDataFrame, str]:
+    """``frame`` in the UTM zone of its centre, for distances in metres, and a note saying so."""
+    try:
+        utm = frame.estimate_utm_crs()
+        projected = frame.to_crs(utm)
+    except Exception as exc:  # pyproj raises several types for impossible transforms
+        raise AnalysisError(
+            f"distances cannot be measured in metres: the boundaries are in a geographic CRS "
+            f"and no UTM zone fits them ({type(exc).__name__}: {exc}); give the boundaries in "
+            "a projected CRS"
+        ) from exc
+    return projected, (
+        f"distances between districts were measured in metres in {utm.name} (the boundaries "
+        "are in longitude/latitude, where distances in degrees are not comparable)"
+    )
 
 
 def _nearest(frame: gpd.GeoDataFrame, island: str, k: int) -> tuple[str, ...]:

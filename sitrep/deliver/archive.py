@@ -46,6 +46,7 @@ __all__ = [
     "VerifyResult",
     "bundle_dir",
     "check_name",
+    "check_outputs",
     "jurisdiction_slug",
     "next_version",
     "read_source_date_epoch",
@@ -722,6 +723,31 @@ def verify_bundle(path: Path) -> VerifyResult:
 # --------------------------------------------------------------------------- plain output folder
 
 
+def check_outputs(folder: Path, names: list[str]) -> list[str]:
+    """Check, without writing, that :func:`write_outputs` may write ``names`` into ``folder``.
+
+    Every name must pass :func:`check_name` (and not collide with another by
+    case or as a folder), and no existing part of any target path may be a
+    symbolic link leading out of ``folder``. Call it before archiving, so a
+    run whose output folder would be refused archives nothing either.
+
+    Returns
+    -------
+    list of str
+        The names, sorted.
+
+    Raises
+    ------
+    DeliveryError
+        A name is refused or a path leaves ``folder``.
+    """
+    folder = Path(folder)
+    checked = _check_names(list(names))
+    for n in checked:
+        _check_confined(folder, folder.joinpath(*n.split("/")))
+    return checked
+
+
 def write_outputs(folder: Path, files: Mapping[str, bytes]) -> tuple[Path, ...]:
     """Write files into a plain (non-archive) output folder, each one atomically.
 
@@ -751,9 +777,7 @@ def write_outputs(folder: Path, files: Mapping[str, bytes]) -> tuple[Path, ...]:
         A name is refused, a path leaves ``folder``, or the file system fails.
     """
     folder = Path(folder)
-    names = _check_names(list(files))
-    for n in names:
-        _check_confined(folder, folder.joinpath(*n.split("/")))
+    names = check_outputs(folder, list(files))
     written: list[Path] = []
     try:
         folder.mkdir(parents=True, exist_ok=True)

@@ -7,7 +7,10 @@ returned as findings; only a file that cannot be opened raises.
 
 from __future__ import annotations
 
+import functools
 import hashlib
+import importlib.resources
+import math
 import unicodedata
 import warnings
 from pathlib import Path
@@ -20,7 +23,14 @@ from sitrep.errors import InputError
 from sitrep.ingest.read import sort_findings
 from sitrep.model import Districts, Finding, InputFile, Severity, ValidationReport
 
-__all__ = ["REPAIR_AREA_TOLERANCE", "RULES", "read_districts"]
+__all__ = [
+    "GAP_SHARE",
+    "REPAIR_AREA_TOLERANCE",
+    "REPORT_FONTS",
+    "RULES",
+    "missing_glyphs",
+    "read_districts",
+]
 
 RULES: tuple[tuple[str, str], ...] = (
     ("boundaries-too-large", "the boundary file is larger than input.max_input_mb"),
@@ -44,12 +54,30 @@ RULES: tuple[tuple[str, str], ...] = (
     ("geometry-not-polygon", "a district's geometry is not a Polygon or MultiPolygon"),
     ("geometry-invalid", "a district's geometry is invalid and cannot be repaired safely"),
     ("geometry-repaired", "a district's invalid geometry was repaired with make_valid (warning)"),
+    (
+        "boundaries-outside-extent",
+        "the layer lies outside input.boundaries_extent (swapped axes or a wrong CRS)",
+    ),
+    (
+        "geometry-gap",
+        "a district touches no other district but lies within a sliver of one (warning)",
+    ),
+    (
+        "name-glyphs-missing",
+        "a district name has characters the report font cannot draw (warning)",
+    ),
     ("reader-warning", "the underlying file reader emitted a warning (info)"),
 )
 """Rule ids of this module with one-line descriptions (for the documentation)."""
 
 REPAIR_AREA_TOLERANCE = 0.01
 """A repair is safe when the area changes by at most this share (see :func:`read_districts`)."""
+
+GAP_SHARE = 0.01
+"""A gap narrower than this share of sqrt(area) is a sliver, not sea (see :func:`read_districts`)."""
+
+REPORT_FONTS = ("DejaVuSans.ttf", "DejaVuSans-Bold.ttf")
+"""The fonts shipped in ``sitrep/assets`` that the PDF is set in (regular and bold)."""
 
 _GEOJSON = {".geojson", ".json"}
 _GPKG = {".gpkg"}
@@ -105,12 +133,29 @@ def read_districts(
     repair would change the district's shape materially (a bow-tie, whose
     loops' signed areas cancel, is the typical case) and it is an error.
 
+    When ``settings.boundaries_extent`` declares the expected extent
+    ``[west, south, east, north]`` in WGS 84 degrees (the bounding-box order
+    of RFC 7946 §5), the layer's bounds, transformed to WGS 84, must lie
+    inside it; otherwise it is an error. This catches swapped longitude and
+    latitude and a wrongly declared CRS, which the range check cannot when
+    the swapped numbers are still valid degrees.
+
+    Two warnings need no setting. ``geometry-gap``: a district that touches
+    no other district although another lies closer than ``GAP_SHARE`` (1 %)
+    of the square root of its area (a sliver gap left by simplifying or
+    shrinking polygons, which silently removes contiguity neighbours; an
+    offshore island is much farther away). ``name-glyphs-missing``: a name
+    holds characters for which the fonts the PDF is set in
+    (``REPORT_FONTS``, DejaVu Sans regular and bold) have no glyph, e.g. CJK;
+    the message names each character and its code point.
+
     Parameters
     ----------
     path : pathlib.Path
         The boundary file (for a shapefile, the ``.shp``).
     settings : InputSettings
-        Layer, id/name columns, declared CRS, id whitespace rule, size cap.
+        Layer, id/name columns, declared CRS and extent, id whitespace rule,
+        size cap.
 
     Returns
     -------
@@ -169,6 +214,10 @@ def read_districts(
     result = _check_features(frame, settings, out)
     if result is None or out.has_errors:
         return None, out.report()
+    if not _check_extent(result, settings, out):
+        return None, out.report()
+    _check_gaps(result, out)
+    _check_glyphs(result, settings, out)
     return Districts(frame=result, source=source), out.report()
 
 
@@ -438,3 +487,131 @@ def _safe_repair(geom: Any) -> Any:
     if biggest <= 0 or abs(after - before) > REPAIR_AREA_TOLERANCE * biggest:
         return None
     return fixed
+
+
+def _check_extent(frame: Any, settings: InputSettings, out: _Out) -> bool:
+    """False (with an error) when the layer is not inside ``settings.boundaries_extent``."""
+    extent = settings.boundaries_extent
+    if extent is None:
+        return True
+    west, south, east, north = extent
+    try:
+        lon_lat = frame.to_crs("EPSG:4326")
+    except Exception as exc:  # pyproj raises several types for impossible transforms
+        out.error(
+            "boundaries-outside-extent",
+            f"the boundaries cannot be transformed to WGS 84 to compare with "
+            f"input.boundaries_extent ({type(exc).__name__}: {exc}); check the CRS",
+        )
+        return False
+    minx, miny, maxx, maxy = (float(v) for v in lon_lat.total_bounds)
+    if minx >= west and maxx <= east and miny >= south and maxy <= north:
+        return True
+    out.error(
+        "boundaries-outside-extent",
+        f"expected the districts inside input.boundaries_extent (longitude {west:g}..{east:g}, "
+        f"latitude {south:g}..{north:g}), got longitude {minx:.4f}..{maxx:.4f}, latitude "
+        f"{miny:.4f}..{maxy:.4f}; longitude and latitude may be swapped or the CRS wrong. "
+        "Fix the file or its CRS (input.boundaries_crs)",
+        value=f"{minx:.4f},{miny:.4f},{maxx:.4f},{maxy:.4f}",
+    )
+    return False
+
+
+def _check_gaps(frame: Any, out: _Out) -> None:
+    """Warn about districts that touch none but lie within a sliver of another."""
+    import shapely
+
+    geoms = np.asarray(frame.geometry.to_numpy(), dtype=object)
+    if len(geoms) < 2:
+        return
+    tree = shapely.STRtree(geoms)
+    ids = list(frame["district_id"])
+    for k, g in enumerate(geoms):
+        touching = [j for j in tree.query(g, predicate="intersects") if j != k]
+        if touching:
+            continue
+        tolerance = GAP_SHARE * math.sqrt(max(g.area, 0.0))
+        if tolerance <= 0:
+            continue
+        near = [j for j in tree.query(g, predicate="dwithin", distance=tolerance) if j != k]
+        if not near:
+            continue
+        j = min(near, key=lambda m: (g.distance(geoms[m]), ids[m]))
+        gap = g.distance(geoms[j])
+        out.add(
+            Severity.WARNING,
+            "geometry-gap",
+            f"district {ids[k]} touches no other district, but {ids[j]} is only {gap:.3g} map "
+            f"units away (under {GAP_SHARE:.0%} of the district's width); the boundaries "
+            "probably have sliver gaps (simplified or shrunk polygons), so contiguity "
+            "neighbours are missing and cluster results are not trustworthy. Use boundaries "
+            "that share their edges",
+            district_id=ids[k],
+            value=f"{gap:.6g}",
+        )
+
+
+@functools.lru_cache(maxsize=1)
+def _font_codepoints() -> frozenset[int]:
+    """Code points that every font in ``REPORT_FONTS`` has a glyph for (empty: no check)."""
+    try:
+        from fontTools.ttLib import TTFont
+    except ImportError:  # pragma: no cover - fontTools comes with WeasyPrint
+        return frozenset()
+    folder = importlib.resources.files("sitrep.assets")
+    common: set[int] | None = None
+    for name in REPORT_FONTS:
+        with importlib.resources.as_file(folder / name) as font_path:
+            font = TTFont(str(font_path), lazy=True)
+            try:
+                cmap = set(font.getBestCmap() or {})
+            finally:
+                font.close()
+        common = cmap if common is None else common & cmap
+    return frozenset(common or ())
+
+
+def missing_glyphs(text: str) -> tuple[str, ...]:
+    """Characters of ``text`` (in order, once each) the report fonts cannot draw.
+
+    Whitespace and other characters that are never drawn (Unicode categories
+    Zs, Cc, Cf) are not checked. An empty tuple also results when the font
+    files cannot be read (the check is then skipped).
+
+    >>> missing_glyphs("Ελληνικό Северный Thévrisande")
+    ()
+    >>> missing_glyphs("北区 東京")
+    ('北', '区', '東', '京')
+    """
+    covered = _font_codepoints()
+    if not covered:
+        return ()
+    seen: dict[str, None] = {}
+    for ch in text:
+        if unicodedata.category(ch) in ("Zs", "Cc", "Cf") or ord(ch) in covered:
+            continue
+        seen.setdefault(ch, None)
+    return tuple(seen)
+
+
+def _check_glyphs(frame: Any, settings: InputSettings, out: _Out) -> None:
+    for ident, name in zip(frame["district_id"], frame["district_name"], strict=True):
+        missing = missing_glyphs(str(name))
+        if not missing:
+            continue
+        listing = ", ".join(f"{ch!r} (U+{ord(ch):04X})" for ch in missing[:12])
+        more = f" and {len(missing) - 12} more" if len(missing) > 12 else ""
+        out.add(
+            Severity.WARNING,
+            "name-glyphs-missing",
+            f"the name of district {ident} ({name!r}) has characters that the report font "
+            f"(DejaVu Sans, shipped with sitrep) cannot draw: {listing}{more}. In the PDF they "
+            "are drawn only if an installed system font covers them (for Chinese, Japanese and "
+            "Korean e.g. Debian's fonts-noto-cjk), otherwise as blank boxes; the HTML depends "
+            "on the reader's fonts. Check the PDF, or give the name in Latin, Greek or "
+            "Cyrillic script",
+            column=settings.boundaries_name_column,
+            district_id=str(ident),
+            value=str(name),
+        )

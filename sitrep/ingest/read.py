@@ -264,7 +264,9 @@ def read_count_table(
 # --------------------------------------------------------------------------- readers
 
 
-def _decode(data: bytes, encoding: str, out: _Collector) -> str | None:
+def _decode(
+    data: bytes, encoding: str, out: _Collector, delimiter: str = ","
+) -> str | None:
     codec = "utf-8-sig" if encoding.lower().replace("_", "-") in ("utf-8", "utf8") else encoding
     try:
         return data.decode(codec)
@@ -277,21 +279,43 @@ def _decode(data: bytes, encoding: str, out: _Collector) -> str | None:
         )
     except UnicodeDecodeError as exc:
         line = data.count(b"\n", 0, exc.start) + 1
-        col = exc.start - (data.rfind(b"\n", 0, exc.start) + 1) + 1
+        line_start = data.rfind(b"\n", 0, exc.start) + 1
+        col = exc.start - line_start + 1
         bad = data[exc.start : exc.end].hex(" ")
+        column = _column_at(data, line_start, exc.start, delimiter)
+        where = f" in column {column!r}" if column else ""
         out.error(
             "file-encoding",
-            f"line {line} is not valid {encoding} (byte 0x{bad} at character {col}); the file "
-            "was probably saved in another encoding. Set input.encoding to the file's encoding "
-            "(for example 'latin-1' or 'cp1252') or re-save it as UTF-8",
+            f"line {line} is not valid {encoding} (byte 0x{bad} at character {col}{where}); the "
+            "file was probably saved in another encoding. Set input.encoding to the file's "
+            "encoding (for example 'latin-1' or 'cp1252') or re-save it as UTF-8",
             line=line,
+            column=column,
             value=f"0x{bad}",
         )
     return None
 
 
+def _column_at(data: bytes, line_start: int, position: int, delimiter: str) -> str | None:
+    """Header name of the field that byte ``position`` (on the line starting at ``line_start``)
+    falls in, counting fields with the csv module on text decoded with replacement."""
+    header_end = data.find(b"\n")
+    header_bytes = data[: header_end if header_end >= 0 else len(data)]
+    if header_bytes.startswith(b"\xef\xbb\xbf"):
+        header_bytes = header_bytes[3:]
+    try:
+        header = next(csv.reader([header_bytes.decode("utf-8", "replace").rstrip("\r")],
+                                 delimiter=delimiter))
+        before = data[line_start:position].decode("utf-8", "replace")
+        fields = next(csv.reader([before + "x"], delimiter=delimiter))
+    except (csv.Error, StopIteration):
+        return None
+    index = len(fields) - 1
+    return _nfc(header[index]).strip() if 0 <= index < len(header) else None
+
+
 def _read_csv(data: bytes, settings: InputSettings, out: _Collector) -> _Raw | None:
-    text = _decode(data, settings.encoding, out)
+    text = _decode(data, settings.encoding, out, settings.delimiter)
     if text is None:
         return None
     if not text.strip():
@@ -608,10 +632,17 @@ def _number_hint(text: str, decimal: str) -> str:
         return "remove the % sign and give the count"
     if text.startswith(("<", ">", "≤", "≥")):
         return "a censored value such as <5 cannot be counted; supply the exact count"
-    if _THOUSANDS.match(text):
-        return "it looks like a thousands separator; export numbers without grouping"
     other = "," if decimal == "." else "."
-    if re.match(rf"^[+-]?\d+\{other}\d+$", text):
+    decimal_like = re.match(rf"^[+-]?\d+\{other}\d+$", text) is not None
+    if _THOUSANDS.match(text):
+        if decimal_like:  # '3,779' is 3779 with grouping, or 3.779 with a decimal comma
+            return (
+                f"it has a thousands separator or uses {other!r} as the decimal mark; export "
+                f"numbers without grouping, or set input.decimal = {other!r} if that is the "
+                "file's decimal mark"
+            )
+        return "it looks like a thousands separator; export numbers without grouping"
+    if decimal_like:
         return (
             f"it uses {other!r} as the decimal mark but input.decimal is {decimal!r}; "
             f"set input.decimal = {other!r} if that is the file's convention"

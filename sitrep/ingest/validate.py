@@ -576,8 +576,10 @@ def validate_against_prior(
       prior latest week.
     * ``week-skipped`` (warning): the current latest week is more than one
       week after the prior latest week (week arithmetic of
-      :class:`~sitrep.weeks.EpiWeek`, so a week 53 is counted); the change is
-      then over more than one week.
+      :class:`~sitrep.weeks.EpiWeek`, so a week 53 is counted). The message
+      says which value the change uses: the week before the latest as given in
+      this week's table, or none (the change is then not assessed) when the
+      table has no rows for that week either.
     * ``district-new`` / ``district-dropped`` (warning): a district in the
       current latest week but in no row of the prior latest week, and the
       reverse.
@@ -641,12 +643,26 @@ def validate_against_prior(
             value=str(latest),
         )
     elif step > 1:
+        week_before = latest - 1
+        skipped = step - 1
+        if any(w == week_before for w in cur.weeks):
+            basis = (
+                f"the change is computed against {week_before} as given in this week's table "
+                "(no figure for it was published)"
+            )
+        else:
+            basis = (
+                f"this week's table has no rows for {week_before} either, so the week-over-week "
+                "change is not assessed"
+            )
         out.add(
             Severity.WARNING,
             "week-skipped",
             f"this week's table ends at {latest} but last week's ended at {prior_latest}; "
-            f"{step - 1} week{'s' if step > 2 else ''} were skipped, so the change is over "
-            f"{step} weeks, not one. Check for a missed delivery",
+            f"{skipped} week{'s' if skipped > 1 else ''} ({prior_latest + 1}"
+            + (f" to {latest - 1}" if skipped > 1 else "")
+            + f") had no extract: this table comes over {step} weeks after last week's, not "
+            f"one, and {basis}. Check for a missed delivery",
             line=cur.line(int(first_latest)),
             column=c_week,
             value=str(latest),

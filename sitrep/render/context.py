@@ -203,7 +203,7 @@ def build_context(
         names=high_names,
     )
     clusters = analysis.clusters
-    assessable = not all(lab.value == "not assessable" for lab in clusters.labels)
+    assessable = clusters.assessable
     transitions = analysis.transitions
     groups = []
     for group in transitions.groups_now:

@@ -3,29 +3,72 @@
 Both carry the same sentences as the report's key messages and sections.
 The Markdown goes through the same escaping environment as the HTML, so a
 name holding markup cannot become live HTML when the draft is previewed;
-``&`` therefore reads ``&amp;`` in the raw file and ``&`` when rendered.
+``<`` and ``>`` stay entities there. Markdown's own link syntax is escaped
+too (see :func:`markdown_text`), so a name such as
+``[click](javascript:...)`` or ``![x](http://...)`` shows literally instead of
+becoming a live link or a remote image in a Markdown viewer.
 """
 
 from __future__ import annotations
 
+import dataclasses
 import datetime as dt
 import io
+import re
 from pathlib import Path
+from typing import Any
 
 from sitrep.render.context import ReportContext
 from sitrep.render.html import render_text
 
-__all__ = ["render_docx", "render_email_body", "render_markdown"]
+__all__ = ["markdown_text", "render_docx", "render_email_body", "render_markdown"]
+
+_MD_ESCAPE = re.compile(r"([\\\[\]])")
+_CONTROL = re.compile(r"[\x00-\x1f\x7f\u2028\u2029]")
+
+
+def markdown_text(text: str) -> str:
+    r"""Make one data string inert in Markdown (CommonMark backslash escapes).
+
+    Every control character (C0 controls such as TAB, CR, LF, and DEL, plus
+    the Unicode line and paragraph separators) becomes a space, so a value
+    cannot start a new Markdown block (a heading, a list item or a link
+    reference definition); then ``\``, ``[`` and ``]`` are backslash-escaped,
+    so no link or image can be formed (CommonMark 0.31, "Backslash escapes").
+    HTML is handled by the template's autoescaping, not here.
+
+    >>> markdown_text("[x](javascript:alert(1))")
+    '\\[x\\](javascript:alert(1))'
+    >>> markdown_text("North\nEast")
+    'North East'
+    """
+    return _MD_ESCAPE.sub(r"\\\1", _CONTROL.sub(" ", text))
+
+
+def _markdown_safe(value: Any) -> Any:
+    """``value`` with :func:`markdown_text` applied to every string inside it."""
+    if isinstance(value, str):
+        return markdown_text(value)
+    if isinstance(value, tuple):
+        return tuple(_markdown_safe(v) for v in value)
+    if dataclasses.is_dataclass(value) and not isinstance(value, type):
+        return dataclasses.replace(
+            value,
+            **{f.name: _markdown_safe(getattr(value, f.name)) for f in dataclasses.fields(value) if f.init},
+        )
+    return value
 
 
 def render_markdown(context: ReportContext, template_dir: Path | None = None) -> str:
     """The draft as Markdown (template ``draft.md.j2``).
 
-    Rendered with escaping on; quotes and ampersands are then restored, since
-    they are harmless in Markdown, while ``<`` and ``>`` stay as entities so a
-    name holding markup shows literally in any Markdown viewer.
+    Every string of the context first goes through :func:`markdown_text`
+    (link syntax escaped, control characters made spaces). The template is
+    then rendered with HTML escaping on; quotes and ampersands are restored,
+    since they are harmless in Markdown, while ``<`` and ``>`` stay as entities
+    so a name holding markup shows literally in any Markdown viewer.
     """
-    text = render_text("draft.md.j2", template_dir, c=context)
+    text = render_text("draft.md.j2", template_dir, c=_markdown_safe(context))
     return text.replace("&#39;", "'").replace("&#34;", '"').replace("&amp;", "&")
 
 

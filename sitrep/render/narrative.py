@@ -280,6 +280,8 @@ RULE_PHRASES = {
     "stale-resend": "rows identical to the previous week",
     "geometry-repaired": "repaired boundary shapes",
     "column-optional-missing": "optional columns missing",
+    "name-glyphs-missing": "district names the report font cannot draw",
+    "geometry-gap": "gaps between district boundaries",
 }
 """Plain words for validation rule ids in the key messages (ids not listed appear as they are)."""
 

@@ -8,7 +8,6 @@ Suppressed districts' values are blanked unless the configuration keeps them.
 
 from __future__ import annotations
 
-import csv
 import io
 import json
 import math
@@ -18,7 +17,7 @@ from sitrep.analysis.week import WeekAnalysis
 from sitrep.config import AnalysisSettings
 from sitrep.model import ValidationReport
 
-__all__ = ["RESULT_COLUMNS", "neutralise_formula", "results_csv", "results_json", "validation_json"]
+__all__ = ["RESULT_COLUMNS", "csv_field", "neutralise_formula", "results_csv", "results_json", "validation_json"]
 
 RESULT_COLUMNS = (
     "district_id", "district_name", "week", "reporting_sites", "ili_visits", "total_visits",
@@ -59,11 +58,31 @@ def _records(analysis: WeekAnalysis, settings: AnalysisSettings) -> list[dict[st
     return out
 
 
+def csv_field(text: str) -> str:
+    r"""One CSV field quoted as RFC 4180 §2 requires.
+
+    A field holding a comma, a double quote, CR or LF is enclosed in double
+    quotes with each ``"`` doubled; any other field is written as it is.
+    (Python's ``csv.writer`` with an LF line terminator does not quote a lone
+    CR, which spreadsheet programs then read as a line break.)
+
+    >>> csv_field('North "East", part'), csv_field("a\rb"), csv_field("Ostrelle")
+    ('"North ""East"", part"', '"a\rb"', 'Ostrelle')
+    """
+    if any(c in text for c in (",", '"', "\r", "\n")):
+        return '"' + text.replace('"', '""') + '"'
+    return text
+
+
 def results_csv(analysis: WeekAnalysis, settings: AnalysisSettings) -> bytes:
-    """The per-district table as UTF-8 CSV (RFC 4180 quoting, LF line ends)."""
+    """The per-district table as UTF-8 CSV (RFC 4180 quoting by :func:`csv_field`, LF line ends).
+
+    Text cells pass through :func:`neutralise_formula` first; numbers are
+    written with ``repr`` after rounding to 10 decimals, booleans as
+    ``true``/``false``, missing values as empty fields.
+    """
     buffer = io.StringIO()
-    writer = csv.writer(buffer, lineterminator="\n")
-    writer.writerow(RESULT_COLUMNS)
+    buffer.write(",".join(csv_field(c) for c in RESULT_COLUMNS) + "\n")
     for row in _records(analysis, settings):
         cells = []
         for col in RESULT_COLUMNS:
@@ -78,7 +97,7 @@ def results_csv(analysis: WeekAnalysis, settings: AnalysisSettings) -> bytes:
                 cells.append(str(value))
             else:
                 cells.append(neutralise_formula(str(value)))
-        writer.writerow(cells)
+        buffer.write(",".join(csv_field(c) for c in cells) + "\n")
     return buffer.getvalue().encode("utf-8")
 
 
