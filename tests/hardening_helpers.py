@@ -6,7 +6,7 @@ EPSG:32630 (UTM zone 30N), a season-to-date extract for MMWR weeks 2026-W40 to
 with a TOML configuration, so each test can change one thing and run the real
 pipeline (``pipeline.build``) or the real CLI (``cli.main``). Also: output
 scanners (html.parser, pypdf, a grep for placeholders), a loopback canary HTTP
-server that counts requests, and a loopback SMTP server (aiosmtpd).
+server that counts requests. The loopback SMTP server is in mail_fixtures.py.
 """
 
 from __future__ import annotations
@@ -18,15 +18,15 @@ import hashlib
 import html.parser
 import http.server
 import io
-import json
 import re
-import socket
 import struct
 import threading
 import zlib
-from collections.abc import Callable, Iterator, Sequence
+from collections.abc import Callable, Sequence
 from pathlib import Path
 from typing import Any
+
+from toml_fixtures import toml_value
 
 TODAY = dt.date(2026, 11, 30)
 """The Monday after MMWR week 2026-W47 (22-28 November 2026)."""
@@ -236,17 +236,7 @@ def to_toml(raw: dict[str, dict[str, Any]]) -> str:
     """Minimal TOML writer for the configuration (tables of scalars, lists, sub-tables)."""
 
     def value(v: Any) -> str:
-        if isinstance(v, bool):
-            return "true" if v else "false"
-        if isinstance(v, int):
-            return str(int(v))
-        if isinstance(v, float):
-            return repr(float(v))  # also for numpy floats, whose repr is not TOML
-        if isinstance(v, str):
-            return json.dumps(v, ensure_ascii=False)  # JSON string escapes are valid TOML
-        if isinstance(v, (list, tuple)):
-            return "[" + ", ".join(value(x) for x in v) + "]"
-        raise TypeError(f"cannot write {v!r} as TOML")
+        return toml_value(v, ensure_ascii=False)
 
     lines: list[str] = []
     for section, values in raw.items():
@@ -424,49 +414,6 @@ class Canary:
         self.server.shutdown()
         self.server.server_close()
         self.thread.join(5)
-
-
-def free_port() -> int:
-    with socket.socket(socket.AF_INET, socket.SOCK_STREAM) as s:
-        s.bind(("127.0.0.1", 0))
-        return int(s.getsockname()[1])
-
-
-class SmtpRecorder:
-    """aiosmtpd handler that records every message; can refuse chosen recipients."""
-
-    def __init__(self, refuse: Sequence[str] = ()) -> None:
-        self.messages: list[tuple[str, list[str], bytes]] = []
-        self.refuse = set(refuse)
-        self.sessions = 0
-
-    async def handle_EHLO(self, server: Any, session: Any, envelope: Any, hostname: str, responses: list[str]) -> list[str]:  # noqa: N802
-        self.sessions += 1
-        session.host_name = hostname
-        return responses
-
-    async def handle_RCPT(self, server: Any, session: Any, envelope: Any, address: str, rcpt_options: list[str]) -> str:  # noqa: N802
-        if address in self.refuse:
-            return "550 5.1.1 mailbox unavailable"
-        envelope.rcpt_tos.append(address)
-        return "250 OK"
-
-    async def handle_DATA(self, server: Any, session: Any, envelope: Any) -> str:  # noqa: N802
-        self.messages.append((envelope.mail_from, list(envelope.rcpt_tos), envelope.content))
-        return "250 2.0.0 queued"
-
-
-@contextlib.contextmanager
-def smtp_server(handler: SmtpRecorder) -> Iterator[int]:
-    from aiosmtpd.controller import Controller
-
-    port = free_port()
-    controller = Controller(handler, hostname="127.0.0.1", port=port, ready_timeout=5)
-    controller.start()
-    try:
-        yield port
-    finally:
-        controller.stop()
 
 
 # --------------------------------------------------------------------------- PDF fonts

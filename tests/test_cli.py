@@ -10,20 +10,17 @@ that changes a bundle works on its own copy.
 
 from __future__ import annotations
 
-import contextlib
 import email
 import email.policy
 import json
 import re
 import shutil
-import socket
-import tomllib
-from collections.abc import Iterator
 from pathlib import Path
 from typing import Any
 
 import pytest
-from aiosmtpd.controller import Controller
+from mail_fixtures import RecordingHandler, free_port, smtp_server
+from toml_fixtures import demo_config_file
 
 from sitrep import cli, errors
 from sitrep.deliver.archive import write_bundle
@@ -39,103 +36,12 @@ RECIPIENTS = ["leadership@quillmarsh.example", "partners@quillmarsh.example"]
 # --------------------------------------------------------------------------- helpers
 
 
-def free_port() -> int:
-    with socket.socket(socket.AF_INET, socket.SOCK_STREAM) as s:
-        s.bind(("127.0.0.1", 0))
-        return int(s.getsockname()[1])
-
-
-class Handler:
-    """Stores messages; can refuse recipients or hang up right after accepting the data."""
-
-    def __init__(self, *, refuse: tuple[str, ...] = (), drop_after_data: bool = False) -> None:
-        self.messages: list[tuple[str, list[str], bytes]] = []
-        self.sessions = 0
-        self.refuse = set(refuse)
-        self.drop_after_data = drop_after_data
-
-    async def handle_EHLO(
-        self, server: Any, session: Any, envelope: Any, hostname: str, responses: list[str]
-    ) -> list[str]:  # noqa: N802
-        self.sessions += 1
-        session.host_name = hostname
-        return responses
-
-    async def handle_RCPT(
-        self, server: Any, session: Any, envelope: Any, address: str, rcpt_options: list[str]
-    ) -> str:  # noqa: N802
-        if address in self.refuse:
-            return "550 5.1.1 mailbox unavailable"
-        envelope.rcpt_tos.append(address)
-        return "250 OK"
-
-    async def handle_DATA(self, server: Any, session: Any, envelope: Any) -> str:  # noqa: N802
-        self.messages.append((envelope.mail_from, list(envelope.rcpt_tos), envelope.content))
-        if self.drop_after_data:
-            server.transport.abort()
-        return "250 2.0.0 queued"
-
-
-@contextlib.contextmanager
-def smtp_server(handler: Handler) -> Iterator[int]:
-    port = free_port()
-    controller = Controller(handler, hostname="127.0.0.1", port=port, ready_timeout=5)
-    controller.start()
-    try:
-        yield port
-    finally:
-        controller.stop()
-
-
-def _toml_value(value: Any) -> str:
-    if isinstance(value, bool):
-        return "true" if value else "false"
-    if isinstance(value, (int, float)):
-        return repr(value)
-    if isinstance(value, str):
-        return json.dumps(value)  # JSON string escapes are valid TOML basic strings
-    if isinstance(value, list):
-        return "[" + ", ".join(_toml_value(v) for v in value) + "]"
-    raise TypeError(value)
-
-
-def dump_toml(doc: dict[str, Any], prefix: str = "") -> str:
-    """Minimal TOML writer for the configuration tables used here."""
-    lines = [f"[{prefix}]"] if prefix else []
-    lines += [f"{k} = {_toml_value(v)}" for k, v in doc.items() if not isinstance(v, dict)]
-    for k, v in doc.items():
-        if isinstance(v, dict):
-            lines += ["", dump_toml(v, f"{prefix}.{k}" if prefix else k)]
-    return "\n".join(lines)
-
-
 def write_config(folder: Path, *, port: int | None = None, **changes: Any) -> Path:
     """The demo configuration with absolute input paths, tmp outputs and loopback e-mail.
 
     ``changes`` are ``section__key=value``.
     """
-    doc = tomllib.loads((DEMO / "sitrep.toml").read_text(encoding="utf-8"))
-    for key in ("table", "prior_table", "history", "boundaries", "inbox"):
-        doc["input"][key] = str(DEMO / doc["input"][key])
-    doc["output"].update(folder=str(folder / "out"), archive=str(folder / "archive"))
-    for key in ("username_env", "password_env"):
-        doc["email"].pop(key)
-    doc["email"].update(
-        enabled=True,
-        host="127.0.0.1",
-        port=port or free_port(),
-        security="none",
-        timeout_s=5.0,
-        retries=0,
-        retry_backoff_s=0.0,
-    )
-    for dotted, value in changes.items():
-        section, key = dotted.split("__")
-        doc[section][key] = value
-    folder.mkdir(parents=True, exist_ok=True)
-    path = folder / "sitrep.toml"
-    path.write_text(dump_toml(doc) + "\n", encoding="utf-8")
-    return path
+    return demo_config_file(folder, email__port=port or free_port(), **changes)
 
 
 def run(capsys: pytest.CaptureFixture[str], *argv: str) -> tuple[int, str, str]:
@@ -333,7 +239,7 @@ def test_verify_of_a_missing_folder_is_a_usage_error(
 def test_send_delivers_the_bundle_then_refuses_a_second_send(
     bundle: Path, tmp_path: Path, capsys: pytest.CaptureFixture[str]
 ) -> None:
-    handler = Handler()
+    handler = RecordingHandler()
     with smtp_server(handler) as port:
         config = write_config(tmp_path / "cfg", port=port)
         code, out, err = run(capsys, "send", str(bundle), "--config", str(config))
@@ -371,7 +277,7 @@ def test_send_delivers_the_bundle_then_refuses_a_second_send(
 def test_send_dry_run_writes_eml_beside_the_bundle(
     bundle: Path, tmp_path: Path, capsys: pytest.CaptureFixture[str]
 ) -> None:
-    handler = Handler()
+    handler = RecordingHandler()
     with smtp_server(handler) as port:
         config = write_config(tmp_path / "cfg", port=port, email__enabled=False)
         code, out, err = run(capsys, "send", str(bundle), "--config", str(config), "--dry-run")
@@ -416,7 +322,7 @@ def test_send_of_a_blocked_bundle_exits_1_and_sends_nothing(
     blocked = write_bundle(
         tmp_path / "other", "Province of Quillmarsh", "2026-W47", files, manifest
     ).path
-    handler = Handler()
+    handler = RecordingHandler()
     with smtp_server(handler) as port:
         config = write_config(tmp_path / "cfg", port=port)
         code, out, err = run(capsys, "send", str(blocked), "--config", str(config))
@@ -431,7 +337,7 @@ def test_send_of_a_blocked_bundle_exits_1_and_sends_nothing(
 def test_send_unknown_outcome_advises_checking_before_resend(
     bundle: Path, tmp_path: Path, capsys: pytest.CaptureFixture[str]
 ) -> None:
-    handler = Handler(drop_after_data=True)
+    handler = RecordingHandler(drop_after_data=True)
     with smtp_server(handler) as port:
         config = write_config(tmp_path / "cfg", port=port)
         code, out, err = run(capsys, "send", str(bundle), "--config", str(config))
@@ -451,7 +357,7 @@ def test_send_partial_and_failed_exit_3(
     config = write_config(tmp_path / "dead", port=dead)
     code, out, err = run(capsys, "send", str(bundle), "--config", str(config))
     assert code == cli.EXIT_DELIVERY and out.startswith("failed: could not talk to 127.0.0.1")
-    handler = Handler(refuse=(RECIPIENTS[1],))
+    handler = RecordingHandler(refuse=(RECIPIENTS[1],))
     with smtp_server(handler) as port:
         config = write_config(tmp_path / "cfg", port=port)
         code, out, err = run(
@@ -480,7 +386,7 @@ def test_send_configuration_problems_exit_2(
     changes: dict[str, Any],
     message: str,
 ) -> None:
-    handler = Handler()
+    handler = RecordingHandler()
     with smtp_server(handler) as port:
         config = write_config(tmp_path / "cfg", port=port, **changes)
         code, _, err = run(capsys, "send", str(bundle), "--config", str(config))

@@ -21,15 +21,14 @@ import hashlib
 import io
 import json
 import shutil
-import socket
-import tomllib
 from collections.abc import Iterator
 from pathlib import Path
 from typing import Any
 
 import pytest
-from aiosmtpd.controller import Controller
 from epiweeks import Week
+from mail_fixtures import RecordingHandler, free_port, smtp_server
+from toml_fixtures import demo_config_file
 
 from sitrep import cli, pipeline
 from sitrep.config import load_config
@@ -56,97 +55,19 @@ SLUG = "province-of-quillmarsh"
 # --------------------------------------------------------------------------- helpers
 
 
-def free_port() -> int:
-    with socket.socket(socket.AF_INET, socket.SOCK_STREAM) as s:
-        s.bind(("127.0.0.1", 0))
-        return int(s.getsockname()[1])
-
-
-class Handler:
-    """Stores every message; can hang up right after accepting the data."""
-
-    def __init__(self, *, drop_after_data: bool = False) -> None:
-        self.messages: list[tuple[str, list[str], bytes]] = []
-        self.sessions = 0
-        self.drop_after_data = drop_after_data
-
-    async def handle_EHLO(
-        self, server: Any, session: Any, envelope: Any, hostname: str, responses: list[str]
-    ) -> list[str]:  # noqa: N802
-        self.sessions += 1
-        session.host_name = hostname
-        return responses
-
-    async def handle_DATA(self, server: Any, session: Any, envelope: Any) -> str:  # noqa: N802
-        self.messages.append((envelope.mail_from, list(envelope.rcpt_tos), envelope.content))
-        if self.drop_after_data:
-            server.transport.abort()
-        return "250 2.0.0 queued"
-
-
-@contextlib.contextmanager
-def smtp_server(handler: Handler) -> Iterator[int]:
-    port = free_port()
-    controller = Controller(handler, hostname="127.0.0.1", port=port, ready_timeout=5)
-    controller.start()
-    try:
-        yield port
-    finally:
-        controller.stop()
-
-
-def _toml_value(value: Any) -> str:
-    if isinstance(value, bool):
-        return "true" if value else "false"
-    if isinstance(value, (int, float)):
-        return repr(value)
-    if isinstance(value, str):
-        return json.dumps(value)  # JSON string escapes are valid TOML basic strings
-    if isinstance(value, list):
-        return "[" + ", ".join(_toml_value(v) for v in value) + "]"
-    raise TypeError(value)
-
-
-def dump_toml(doc: dict[str, Any], prefix: str = "") -> str:
-    """Minimal TOML writer for the configuration tables used here."""
-    lines = [f"[{prefix}]"] if prefix else []
-    lines += [f"{k} = {_toml_value(v)}" for k, v in doc.items() if not isinstance(v, dict)]
-    for k, v in doc.items():
-        if isinstance(v, dict):
-            lines += ["", dump_toml(v, f"{prefix}.{k}" if prefix else k)]
-    return "\n".join(lines)
-
-
 def write_config(folder: Path, *, port: int, inbox: Path, archive: Path, **changes: Any) -> Path:
-    """The demo configuration with absolute input paths, a tmp archive and loopback e-mail."""
-    doc = tomllib.loads((DEMO / "sitrep.toml").read_text(encoding="utf-8"))
-    for key in ("table", "prior_table"):
-        doc["input"].pop(key)
-    doc["input"].update(
-        history=str(DEMO / "history.csv"), boundaries=str(DEMO / "districts.gpkg"), inbox=str(inbox)
-    )
-    doc["output"].update(folder=str(folder / "out"), archive=str(archive))
-    for key in ("username_env", "password_env"):
-        doc["email"].pop(key)
-    doc["email"].update(
-        enabled=True,
-        host="127.0.0.1",
-        port=port,
-        security="none",
-        timeout_s=5.0,
-        retries=0,
-        retry_backoff_s=0.0,
-    )
-    for dotted, value in changes.items():
-        section, key = dotted.split("__")
-        if value is None:
-            doc[section].pop(key, None)
-        else:
-            doc[section][key] = value
-    folder.mkdir(parents=True, exist_ok=True)
-    path = folder / "sitrep.toml"
-    path.write_text(dump_toml(doc) + "\n", encoding="utf-8")
-    return path
+    """The demo configuration with absolute input paths, a tmp archive and loopback e-mail.
+
+    No table or prior_table: ``sitrep run`` takes its extracts from ``inbox``.
+    """
+    defaults = {
+        "input__table": None,
+        "input__prior_table": None,
+        "input__inbox": str(inbox),
+        "output__archive": str(archive),
+        "email__port": port,
+    }
+    return demo_config_file(folder, **{**defaults, **changes})
 
 
 def make_inbox(folder: Path, *files: Path) -> Path:
@@ -202,7 +123,7 @@ class Scenario:
     inbox: Path
     archive: Path
     config: Path
-    handler: Handler
+    handler: RecordingHandler
     port: int
     first: tuple[int, str, str]
     received_after_first: int
@@ -214,7 +135,7 @@ def scenario(tmp_path_factory: pytest.TempPathFactory) -> Iterator[Scenario]:
     folder = tmp_path_factory.mktemp("monday")
     inbox = make_inbox(folder / "inbox", W46, W47)
     archive = folder / "archive"
-    handler = Handler()
+    handler = RecordingHandler()
     with smtp_server(handler) as port:
         config = write_config(folder / "cfg", port=port, inbox=inbox, archive=archive)
         out, err = io.StringIO(), io.StringIO()
@@ -282,7 +203,7 @@ def test_blocked_newest_extract_sends_nothing_and_leaves_archive_untouched(
 ) -> None:
     inbox = make_inbox(tmp_path / "inbox", W46, W47)
     bad_line = broken_w48(inbox / "extract_2026-W48.csv")
-    handler = Handler()
+    handler = RecordingHandler()
     before = tree_digest(scenario.archive)
     with smtp_server(handler) as port:
         config = write_config(tmp_path / "cfg", port=port, inbox=inbox, archive=scenario.archive)
@@ -312,7 +233,7 @@ def test_reissue_is_sent_by_run_and_unknown_is_never_resent(
     html = (result.bundle.path / "report.html").read_text(encoding="utf-8")
     assert "supersedes version 1" in html and reason in html
 
-    dropper = Handler(drop_after_data=True)
+    dropper = RecordingHandler(drop_after_data=True)
     with smtp_server(dropper) as port:
         cfg = write_config(tmp_path / "cfg", port=port, inbox=scenario.inbox, archive=archive)
         code, out, err = run(capsys, "run", "--config", str(cfg), "--today", MONDAY_W48)
@@ -327,7 +248,7 @@ def test_reissue_is_sent_by_run_and_unknown_is_never_resent(
         assert len(dropper.messages) == 1  # not resent automatically
     assert not (archive / SLUG / "2026-W47" / "v3").exists()
     assert delivery_state(result.bundle.path).status == "unknown"
-    good = Handler()
+    good = RecordingHandler()
     with smtp_server(good) as port:
         cfg = write_config(tmp_path / "cfg2", port=port, inbox=scenario.inbox, archive=archive)
         code, out, err = run(

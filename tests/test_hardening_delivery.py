@@ -27,15 +27,14 @@ import pytest
 from hardening_helpers import (
     WEEKS,
     Canary,
-    SmtpRecorder,
     build,
     make_week,
     run_cli,
-    smtp_server,
     table_rows,
     tree_hashes,
     write_csv,
 )
+from mail_fixtures import RecordingHandler, smtp_server
 
 from sitrep.errors import ArchiveExists, DeliveryError, ValidationFailed
 
@@ -144,7 +143,7 @@ def test_h08_archive_is_complete_or_absent_and_never_overwritten(
 
 
 def test_h11_mail_goes_out_only_for_a_clean_run_and_reports_refusals(tmp_path: Path) -> None:
-    recorder = SmtpRecorder(refuse=("director@tessaly.example",))
+    recorder = RecordingHandler(refuse=("director@tessaly.example",))
     with smtp_server(recorder) as port:
         def bad(rows: list[list[str]]) -> list[list[str]]:
             return [r[:4] + ["9999", r[5]] if r[0] == "D02" and r[2] == WEEKS[-1] else r
@@ -295,7 +294,7 @@ def test_h20_pdf_render_is_bounded_in_time() -> None:
 def test_h23_empty_or_header_only_table_blocks_everything(
     tmp_path: Path, content: bytes, rule: str
 ) -> None:
-    recorder = SmtpRecorder()
+    recorder = RecordingHandler()
     with smtp_server(recorder) as port:
         week = make_week(tmp_path / "week", pdf=False,
                          config={"email": {"enabled": True, "port": port}})

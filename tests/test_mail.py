@@ -8,23 +8,20 @@ a ``finally``; client timeouts are 5 s.
 
 from __future__ import annotations
 
-import contextlib
 import dataclasses
 import datetime as dt
 import email
 import email.policy
 import json
 import shutil
-import socket
 import ssl
 import subprocess
-from collections.abc import Iterator
 from pathlib import Path
 from typing import Any
 
 import pytest
-from aiosmtpd.controller import Controller
 from aiosmtpd.smtp import AuthResult
+from mail_fixtures import RecordingHandler, free_port, smtp_server
 
 from sitrep.config import EmailSettings
 from sitrep.deliver.archive import verify_bundle, write_bundle
@@ -47,51 +44,12 @@ def no_sleep(seconds: float) -> None:
     raise AssertionError(f"no retry expected, but a back-off of {seconds} s was asked for")
 
 
-def free_port() -> int:
-    with socket.socket(socket.AF_INET, socket.SOCK_STREAM) as s:
-        s.bind(("127.0.0.1", 0))
-        return int(s.getsockname()[1])
+class Handler(RecordingHandler):
+    """The shared recording handler, plus a login check (ili-bot / s3cret-pass) that records tries."""
 
-
-class Handler:
-    """Records messages; can refuse recipients, answer DATA with given codes, or hang up."""
-
-    def __init__(
-        self,
-        *,
-        data_replies: tuple[str, ...] = (),
-        refuse: tuple[str, ...] = (),
-        drop_after_data: bool = False,
-    ) -> None:
-        self.messages: list[tuple[str, list[str], bytes]] = []
-        self.data_replies = list(data_replies)
-        self.refuse = set(refuse)
-        self.drop_after_data = drop_after_data
-        self.sessions = 0
+    def __init__(self, **options: Any) -> None:
+        super().__init__(**options)
         self.logins: list[tuple[bytes, bytes]] = []
-
-    async def handle_EHLO(
-        self, server: Any, session: Any, envelope: Any, hostname: str, responses: list[str]
-    ) -> list[str]:  # noqa: N802
-        self.sessions += 1
-        session.host_name = hostname
-        return responses
-
-    async def handle_RCPT(
-        self, server: Any, session: Any, envelope: Any, address: str, rcpt_options: list[str]
-    ) -> str:  # noqa: N802
-        if address in self.refuse:
-            return "550 5.1.1 mailbox unavailable"
-        envelope.rcpt_tos.append(address)
-        return "250 OK"
-
-    async def handle_DATA(self, server: Any, session: Any, envelope: Any) -> str:  # noqa: N802
-        if self.data_replies:
-            return self.data_replies.pop(0)
-        self.messages.append((envelope.mail_from, list(envelope.rcpt_tos), envelope.content))
-        if self.drop_after_data:
-            server.transport.abort()
-        return "250 2.0.0 queued"
 
     def authenticate(
         self, server: Any, session: Any, envelope: Any, mechanism: str, auth_data: Any
@@ -99,17 +57,6 @@ class Handler:
         self.logins.append((auth_data.login, auth_data.password))
         ok = (auth_data.login, auth_data.password) == (b"ili-bot", b"s3cret-pass")
         return AuthResult(success=ok, handled=False)
-
-
-@contextlib.contextmanager
-def smtp_server(handler: Handler, **kwargs: Any) -> Iterator[int]:
-    port = free_port()
-    controller = Controller(handler, hostname="127.0.0.1", port=port, ready_timeout=5, **kwargs)
-    controller.start()
-    try:
-        yield port
-    finally:
-        controller.stop()
 
 
 @pytest.fixture(scope="module")

@@ -8,8 +8,8 @@ from pathlib import Path
 
 import jinja2
 import pytest
-
 from conftest import DEMO, TODAY, demo_config
+
 from sitrep.errors import RenderError
 from sitrep.render import html as render_html_module
 from sitrep.render.draft import render_markdown
