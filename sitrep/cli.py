@@ -86,8 +86,16 @@ def _parser() -> argparse.ArgumentParser:
     p.add_argument("--inputs", type=Path, default=None, help="demo inputs folder (default ./demo_inputs)")
 
     p = verb("build", "validate, analyse, render and archive this week's report")
-    p.add_argument("--config", type=Path, required=True, help="the jurisdiction's TOML configuration")
-    p.add_argument("--out", type=Path, default=None, help="output folder (default: output.folder)")
+    p.add_argument("--config", type=Path, action="append", default=None,
+                   help="the jurisdiction's TOML configuration; repeat it to build several (a batch)")
+    p.add_argument("--configs-dir", type=Path, default=None, metavar="FOLDER",
+                   help="batch: build every *.toml file in FOLDER")
+    p.add_argument("--workers", type=int, default=None, metavar="N",
+                   help="batch: local worker processes (default: 2, or 1 for one configuration)")
+    p.add_argument("--scheduler", default=None, metavar="ADDRESS",
+                   help="batch: run on this Dask distributed scheduler, e.g. tcp://10.1.2.3:8786")
+    p.add_argument("--out", type=Path, default=None,
+                   help="output folder (default: output.folder; in a batch FOLDER/<jurisdiction>/)")
     p.add_argument("--reissue", metavar="REASON", default=None,
                    help="write a new version of an already archived week, giving the reason")
     p.add_argument("--no-archive", action="store_true", help="write the output folder only")
@@ -215,7 +223,28 @@ def _build(config: Config, out: Path | None, *, reissue: str | None, archive: bo
 
 
 def _cmd_build(args: argparse.Namespace) -> int:
-    return _build(_load(args.config), args.out, reissue=args.reissue, archive=not args.no_archive)
+    configs = list(args.config or [])
+    if args.configs_dir is not None:
+        from sitrep.batch import configs_in
+
+        configs += configs_in(args.configs_dir)
+    if not configs:
+        raise ConfigError("build needs --config FILE (repeatable) or --configs-dir FOLDER")
+    batch = len(configs) > 1 or args.configs_dir is not None or args.scheduler is not None
+    if not batch and args.workers is None:
+        return _build(_load(configs[0]), args.out, reissue=args.reissue, archive=not args.no_archive)
+    from sitrep.batch import batch_exit_code, run_batch, summary_table
+
+    results = run_batch(
+        configs,
+        workers=args.workers,
+        scheduler=args.scheduler,
+        out_root=args.out,
+        archive=not args.no_archive,
+        reissue_reason=args.reissue,
+    )
+    print(summary_table(results))
+    return batch_exit_code(results)
 
 
 def _cmd_check(args: argparse.Namespace) -> int:

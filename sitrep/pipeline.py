@@ -8,43 +8,83 @@ earlier report untouched.
 
 from __future__ import annotations
 
+import collections
+import contextlib
 import dataclasses
 import datetime as dt
 import hashlib
+import importlib.util
 import json
-from collections.abc import Callable
+import time
+from collections.abc import Callable, Iterator
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
-from sitrep.analysis.seasonal_context import seasonal_context
-from sitrep.analysis.week import WeekAnalysis, analyse_week
-from sitrep.analysis.weights import DistrictGraph, build_graph
 from sitrep.config import Config
-from sitrep.deliver.archive import (
-    Bundle,
-    next_version,
-    reproducible_env,
-    source_date_epoch,
-    write_bundle,
-    write_outputs,
-)
-from sitrep.deliver.pdf import html_to_pdf
 from sitrep.errors import ConfigError, InputError, ValidationFailed
 from sitrep.ingest.geometry import read_districts
 from sitrep.ingest.read import read_count_table
 from sitrep.ingest.validate import validate_against_prior, validate_table
 from sitrep.model import CountTable, Districts, InputFile, ValidationReport
-from sitrep.render.context import ReportContext, build_context
-from sitrep.render.draft import render_docx, render_email_body, render_markdown
-from sitrep.render.html import asset_dir, render_html
-from sitrep.render.report_figures import draw_report_figures
-from sitrep.render.results import results_csv, results_json, validation_json
-from sitrep.versions import library_versions
 from sitrep.weeks import EpiWeek, WeekSystem
 
-__all__ = ["Inputs", "RunResult", "build", "check", "read_inputs"]
+if TYPE_CHECKING:
+    from sitrep.analysis.week import WeekAnalysis
+    from sitrep.analysis.weights import DistrictGraph
+    from sitrep.deliver.archive import Bundle
+    from sitrep.render.context import ReportContext
+
+# The analysis, render and deliver stages are imported inside build(): check()
+# and the CLI's check verb need only ingest, and importing matplotlib,
+# libpysal, statsmodels and the rest costs about 1.5 s (python -X importtime).
+
+__all__ = [
+    "STAGES",
+    "WEIGHTS_CACHE_FOLDER",
+    "Inputs",
+    "RunResult",
+    "build",
+    "check",
+    "permutation_engine",
+    "read_inputs",
+]
 
 Log = Callable[[str], None]
+
+STAGES = (
+    "read",
+    "validate",
+    "imports",
+    "weights",
+    "analysis",
+    "thresholds",
+    "maps",
+    "html",
+    "pdf",
+    "drafts",
+    "results",
+    "archive",
+)
+"""Stage names of the ``timings`` that :func:`build` fills in, in run order.
+
+``imports`` is the loading of the analysis, render and deliver modules,
+which :func:`build` imports only once validation has passed (see the note
+after the imports of this module); ``pdf`` is the time the build spends
+handing the document over and then waiting for the PDF, which renders in
+another process while the drafts and results are made."""
+
+
+@contextlib.contextmanager
+def _timed(timings: dict[str, float] | None, stage: str) -> Iterator[None]:
+    """Add the wall-clock seconds of the block to ``timings[stage]`` (nothing when None)."""
+    if timings is None:
+        yield
+        return
+    start = time.perf_counter()
+    try:
+        yield
+    finally:
+        timings[stage] = timings.get(stage, 0.0) + (time.perf_counter() - start)
 
 
 def _quiet(_: str) -> None:
@@ -89,38 +129,49 @@ def _require(path: Path | None, key: str) -> Path:
     return path
 
 
-def read_inputs(config: Config, *, today: dt.date | None = None) -> Inputs:
+def read_inputs(
+    config: Config,
+    *,
+    today: dt.date | None = None,
+    timings: dict[str, float] | None = None,
+) -> Inputs:
     """Read and validate this week's table, last week's, the history and the boundaries.
 
     Returns the inputs and every finding; raises only for unreadable files or
     configuration errors. ``Inputs.validation.blocked`` says whether to stop.
+    When ``timings`` is given, the seconds spent reading (parse-stage rules
+    included) and validating are added to its ``"read"`` and ``"validate"`` keys.
     """
     system = WeekSystem(config.weeks.system)
     settings = config.input
-    districts, report = read_districts(_require(settings.boundaries, "boundaries"), settings)
-    table, found = read_count_table(_require(settings.table, "table"), settings, system, role="table")
-    report = report.merged(found)
-    prior = history = None
-    if settings.prior_table is not None:
-        prior, found = read_count_table(settings.prior_table, settings, system, role="prior_table")
+    with _timed(timings, "read"):
+        districts, report = read_districts(_require(settings.boundaries, "boundaries"), settings)
+        table, found = read_count_table(
+            _require(settings.table, "table"), settings, system, role="table"
+        )
         report = report.merged(found)
-    if settings.history is not None:
-        history, found = read_count_table(settings.history, settings, system, role="history")
-        report = report.merged(found)
+        prior = history = None
+        if settings.prior_table is not None:
+            prior, found = read_count_table(settings.prior_table, settings, system, role="prior_table")
+            report = report.merged(found)
+        if settings.history is not None:
+            history, found = read_count_table(settings.history, settings, system, role="history")
+            report = report.merged(found)
     start = config.weeks.season_start_week
-    if table is not None:
-        report = report.merged(
-            validate_table(table, districts, config.validation, today=today, season_start_week=start)
-        )
-    if history is not None:
-        report = report.merged(
-            validate_table(
-                history, districts, config.validation, today=today, season_start_week=start,
-                latest_week_rules=False,
+    with _timed(timings, "validate"):
+        if table is not None:
+            report = report.merged(
+                validate_table(table, districts, config.validation, today=today, season_start_week=start)
             )
-        )
-    if table is not None and prior is not None:
-        report = report.merged(validate_against_prior(table, prior, config.validation))
+        if history is not None:
+            report = report.merged(
+                validate_table(
+                    history, districts, config.validation, today=today, season_start_week=start,
+                    latest_week_rules=False,
+                )
+            )
+        if table is not None and prior is not None:
+            report = report.merged(validate_against_prior(table, prior, config.validation))
     return Inputs(table, prior, history, districts, ValidationReport(_dedupe(report.findings)))
 
 
@@ -139,18 +190,60 @@ def check(config: Config, *, today: dt.date | None = None) -> ValidationReport:
     return read_inputs(config, today=today).validation
 
 
-_GRAPH_CACHE: dict[tuple[str, str, int, int], DistrictGraph] = {}
+_GRAPH_CACHE: collections.OrderedDict[tuple[Any, ...], DistrictGraph] = collections.OrderedDict()
+_GRAPH_CACHE_SIZE = 4
+"""Graphs kept in this process (the most recently used), so a batch worker does not grow."""
+
+WEIGHTS_CACHE_FOLDER = Path(".cache") / "weights"
+"""Where, under the archive root, the on-disk weights cache lives (see :mod:`sitrep.cache`)."""
 
 
-def _graph(districts: Districts, config: Config) -> DistrictGraph:
-    """Spatial weights, built once per boundary file checksum and settings in this process."""
+def _graph(districts: Districts, config: Config, log: Log = _quiet) -> DistrictGraph:
+    """Spatial weights, once per boundary file and settings: in this process and on disk.
+
+    The in-process cache is keyed like the disk cache (:func:`sitrep.cache.graph_key`).
+    The disk cache is used when ``output.archive`` is set and lives in
+    :data:`WEIGHTS_CACHE_FOLDER` under it.
+    """
+    from sitrep.analysis.weights import build_graph
+    from sitrep.cache import cached_graph, graph_key
+
     a = config.analysis
-    key = (districts.source.sha256, a.weights, a.knn_k, a.link_islands_k)
-    if key not in _GRAPH_CACHE:
-        _GRAPH_CACHE[key] = build_graph(
+    key = tuple(sorted(graph_key(districts, config.input, a).items())) + (districts.ids,)
+    if key in _GRAPH_CACHE:
+        _GRAPH_CACHE.move_to_end(key)
+        return _GRAPH_CACHE[key]
+    folder = (
+        config.output.archive / WEIGHTS_CACHE_FOLDER if config.output.archive is not None else None
+    )
+    graph, outcome = cached_graph(
+        folder,
+        districts,
+        config.input,
+        a,
+        lambda: build_graph(
             districts.frame, kind=a.weights, k=a.knn_k, link_islands_k=a.link_islands_k
-        )
-    return _GRAPH_CACHE[key]
+        ),
+    )
+    if outcome.status != "off":
+        log(f"weights cache: {outcome.status}" + (f" ({outcome.reason})" if outcome.reason else ""))
+    _GRAPH_CACHE[key] = graph
+    while len(_GRAPH_CACHE) > _GRAPH_CACHE_SIZE:
+        _GRAPH_CACHE.popitem(last=False)
+    return graph
+
+
+def permutation_engine() -> str:
+    """How esda runs the conditional permutations here (for the manifest).
+
+    esda uses numba when it can import it and its plain numpy/Python path
+    otherwise; the choice changes speed, not results (same seed, same
+    permutation draws). sitrep ships without numba: the numpy path needs no
+    compilation in each new process.
+    """
+    if importlib.util.find_spec("numba") is None:
+        return "esda numpy path (numba not installed)"
+    return "esda numba path"
 
 
 def build(
@@ -161,6 +254,7 @@ def build(
     reissue_reason: str | None = None,
     today: dt.date | None = None,
     log: Log = _quiet,
+    timings: dict[str, float] | None = None,
 ) -> RunResult:
     """Run the whole weekly job.
 
@@ -175,18 +269,81 @@ def build(
         Also write the immutable bundle under ``config.output.archive`` when set.
     reissue_reason : str, optional
         Write a new version of an already archived week, giving the reason.
+    today : datetime.date, optional
+        The date the run treats as today (for the future-week rule); default
+        the machine's date.
+    log : callable, optional
+        Receives one line of progress text at a time; silent by default.
+    timings : dict of str to float, optional
+        When given, the wall-clock seconds of each stage of :data:`STAGES`
+        are added to it (``time.perf_counter`` around each stage; a stage that
+        did not run is absent). Nothing is printed. For benchmarks.
+
+    Returns
+    -------
+    RunResult
 
     Raises
     ------
     ValidationFailed
         When validation found an error; nothing is written.
     """
-    inputs = read_inputs(config, today=today or dt.date.today())
+    worker = None
+    if config.output.pdf:
+        from sitrep.deliver.pdf import PdfWorker
+
+        worker = PdfWorker()  # starts WeasyPrint now, in parallel with reading and analysis
+    try:
+        return _build(
+            config,
+            out_dir=out_dir,
+            archive=archive,
+            reissue_reason=reissue_reason,
+            today=today,
+            log=log,
+            timings=timings,
+            worker=worker,
+        )
+    finally:
+        if worker is not None:
+            worker.close()
+
+
+def _build(
+    config: Config,
+    *,
+    out_dir: Path | None,
+    archive: bool,
+    reissue_reason: str | None,
+    today: dt.date | None,
+    log: Log,
+    timings: dict[str, float] | None,
+    worker: Any,
+) -> RunResult:
+    """:func:`build` with the PDF worker already started."""
+    inputs = read_inputs(config, today=today or dt.date.today(), timings=timings)
     if inputs.validation.blocked:
         raise ValidationFailed(
             f"validation found {len(inputs.validation.errors)} error(s); nothing was written",
             inputs.validation,
         )
+    with _timed(timings, "imports"):
+        from sitrep.analysis.seasonal_context import seasonal_context
+        from sitrep.analysis.week import analyse_week
+        from sitrep.deliver.archive import (
+            next_version,
+            reproducible_env,
+            source_date_epoch,
+            write_bundle,
+            write_outputs,
+        )
+        from sitrep.render.context import build_context
+        from sitrep.render.draft import render_docx, render_email_body, render_markdown
+        from sitrep.render.html import asset_dir, render_html
+        from sitrep.render.report_figures import draw_report_figures
+        from sitrep.render.results import results_csv, results_json, validation_json
+        from sitrep.versions import library_versions
+
     assert inputs.table is not None and inputs.districts is not None
     system = WeekSystem(config.weeks.system)
     week = (
@@ -200,81 +357,94 @@ def build(
             f"it holds {inputs.table.weeks[0]} to {inputs.table.weeks[-1]}"
         )
     log(f"report week {week} ({week.start:%d %b %Y} to {week.end:%d %b %Y})")
-    graph = _graph(inputs.districts, config)
-    analysis = analyse_week(
-        inputs.table, inputs.prior, inputs.districts, graph, config.analysis, week=week
-    )
-    seasonal = seasonal_context(
-        inputs.history, inputs.table, week, config.seasonal, season_start_week=config.weeks.season_start_week
-    )
+    with _timed(timings, "weights"):
+        graph = _graph(inputs.districts, config, log)
+    with _timed(timings, "analysis"):
+        analysis = analyse_week(
+            inputs.table, inputs.prior, inputs.districts, graph, config.analysis, week=week
+        )
+    with _timed(timings, "thresholds"):
+        seasonal = seasonal_context(
+            inputs.history, inputs.table, week, config.seasonal,
+            season_start_week=config.weeks.season_start_week,
+        )
     versions = library_versions()
+    reissue = None
+    if reissue_reason is not None and archive and config.output.archive is not None:
+        version = next_version(config.output.archive, config.report.jurisdiction, str(week))
+        reissue = (version, reissue_reason)
     with reproducible_env(source_date_epoch(week.end)):
-        figures = draw_report_figures(analysis, seasonal, inputs.districts)
-        context = build_context(
-            analysis=analysis,
-            seasonal=seasonal,
-            validation=inputs.validation,
-            figures=figures,
-            config=config,
-            versions=versions,
-            inputs=inputs.files,
-            reissue=_reissue(config, week, reissue_reason),
-        )
-        html = render_html(context, config.report.template_dir)
-        pdf_html = render_html(context, config.report.template_dir, for_pdf=True)
-        files: dict[str, bytes] = {"report.html": html.encode("utf-8")}
-        if config.output.pdf:
-            files["report.pdf"] = html_to_pdf(
-                pdf_html,
-                asset_dir=asset_dir(),
-                pdf_variant=config.output.pdf_variant,
-                attachments=(("results.csv", results_csv(analysis, config.analysis)),)
-                if config.output.pdf_variant
-                else (),
+        with _timed(timings, "maps"):
+            figures = draw_report_figures(analysis, seasonal, inputs.districts)
+        with _timed(timings, "html"):
+            context = build_context(
+                analysis=analysis,
+                seasonal=seasonal,
+                validation=inputs.validation,
+                figures=figures,
+                config=config,
+                versions=versions,
+                inputs=inputs.files,
+                reissue=reissue,
             )
-        files["draft.md"] = render_markdown(context, config.report.template_dir).encode("utf-8")
-        files["draft.docx"] = render_docx(context)
-        files["email.txt"] = render_email_body(context, config.report.template_dir).encode("utf-8")
-    files["results.csv"] = results_csv(analysis, config.analysis)
-    files["results.json"] = results_json(analysis, config.analysis)
-    files["validation.json"] = validation_json(inputs.validation)
-    for name, data in figures.files().items():
-        files[f"figures/{name}"] = data
-    manifest = _manifest(config, week, inputs, versions, reissue_reason)
-    manifest["outputs"] = {
-        name: {"sha256": hashlib.sha256(data).hexdigest(), "size_bytes": len(data)}
-        for name, data in sorted(files.items())
-    }
-    files["manifest.json"] = (json.dumps(manifest, indent=2, sort_keys=True) + "\n").encode()
+            html = render_html(context, config.report.template_dir)
+            pdf_html = render_html(context, config.report.template_dir, for_pdf=True)
+        files: dict[str, bytes] = {"report.html": html.encode("utf-8")}
+        if worker is not None:
+            # The PDF renders in the worker process while drafts and results are made here.
+            with _timed(timings, "pdf"):
+                worker.start(
+                    pdf_html,
+                    asset_dir=asset_dir(),
+                    pdf_variant=config.output.pdf_variant,
+                    attachments=(("results.csv", results_csv(analysis, config.analysis)),)
+                    if config.output.pdf_variant
+                    else (),
+                )
+        with _timed(timings, "drafts"):
+            files["draft.md"] = render_markdown(context, config.report.template_dir).encode("utf-8")
+            files["draft.docx"] = render_docx(context)
+            files["email.txt"] = render_email_body(context, config.report.template_dir).encode("utf-8")
+    with _timed(timings, "results"):
+        files["results.csv"] = results_csv(analysis, config.analysis)
+        files["results.json"] = results_json(analysis, config.analysis)
+        files["validation.json"] = validation_json(inputs.validation)
+    if worker is not None:
+        with _timed(timings, "pdf"):
+            pdf = worker.result()
+        html_bytes = files.pop("report.html")
+        files = {"report.html": html_bytes, "report.pdf": pdf, **files}  # the order of before
+    with _timed(timings, "archive"):
+        for name, data in figures.files().items():
+            files[f"figures/{name}"] = data
+        manifest = _manifest(config, week, inputs, versions, reissue_reason)
+        manifest["outputs"] = {
+            name: {"sha256": hashlib.sha256(data).hexdigest(), "size_bytes": len(data)}
+            for name, data in sorted(files.items())
+        }
+        files["manifest.json"] = (json.dumps(manifest, indent=2, sort_keys=True) + "\n").encode()
 
-    bundle = None
-    if archive and config.output.archive is not None:
-        archived = dict(files)
-        archived.pop("manifest.json")
-        if config.output.copy_inputs:
-            for f in inputs.files:
-                archived[f"inputs/{f.role}{f.path.suffix.lower()}"] = f.path.read_bytes()
-                if f.path.suffix.lower() == ".shp":
-                    for sidecar in sorted(f.path.parent.glob(f.path.stem + ".*")):
-                        archived[f"inputs/{f.role}{sidecar.suffix.lower()}"] = sidecar.read_bytes()
-        bundle = write_bundle(
-            config.output.archive,
-            config.report.jurisdiction,
-            str(week),
-            archived,
-            manifest,
-            reissue_reason=reissue_reason,
-        )
-        log(f"archived bundle {bundle.path}")
-    written = write_outputs(out_dir or config.output.folder, files)
+        bundle = None
+        if archive and config.output.archive is not None:
+            archived = dict(files)
+            archived.pop("manifest.json")
+            if config.output.copy_inputs:
+                for f in inputs.files:
+                    archived[f"inputs/{f.role}{f.path.suffix.lower()}"] = f.path.read_bytes()
+                    if f.path.suffix.lower() == ".shp":
+                        for sidecar in sorted(f.path.parent.glob(f.path.stem + ".*")):
+                            archived[f"inputs/{f.role}{sidecar.suffix.lower()}"] = sidecar.read_bytes()
+            bundle = write_bundle(
+                config.output.archive,
+                config.report.jurisdiction,
+                str(week),
+                archived,
+                manifest,
+                reissue_reason=reissue_reason,
+            )
+            log(f"archived bundle {bundle.path}")
+        written = write_outputs(out_dir or config.output.folder, files)
     return RunResult(week, inputs.validation, written, bundle, analysis, context)
-
-
-def _reissue(config: Config, week: EpiWeek, reason: str | None) -> tuple[int, str] | None:
-    """(version being written, reason) for a reissue; None for a first issue."""
-    if reason is None or config.output.archive is None:
-        return None
-    return next_version(config.output.archive, config.report.jurisdiction, str(week)), reason
 
 
 def _manifest(
@@ -293,7 +463,8 @@ def _manifest(
         "report_version": config.report.version,
         "seed": config.analysis.seed,
         "permutations": config.analysis.permutations,
-        "source_date_epoch": source_date_epoch(week.end),
+        "source_date_epoch": _source_date_epoch(week.end),
+        "permutation_engine": permutation_engine(),
         "parameters": _parameters(config),
         "versions": versions,
         "inputs": [
@@ -311,6 +482,12 @@ def _manifest(
         },
         "reissue_reason": reissue_reason,
     }
+
+
+def _source_date_epoch(day: dt.date) -> int:
+    from sitrep.deliver.archive import source_date_epoch
+
+    return source_date_epoch(day)
 
 
 def _parameters(config: Config) -> dict[str, Any]:

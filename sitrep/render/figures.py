@@ -11,6 +11,12 @@ not as ``<text>`` elements. The SVG then looks the same in every browser and
 in WeasyPrint whatever fonts the reader's machine has, at the cost of text
 that cannot be selected or searched inside the figure; the report carries the
 same information as alt text and in the district table.
+
+Rasterized artists (those below an axes' rasterization z-order, such as
+the district fills of maps with many districts, see :mod:`sitrep.render.maps`,
+and those marked with ``Artist.set_rasterized(True)``, such as matplotlib's
+own colour-bar gradients) are embedded in SVG output as PNG images at
+:data:`RASTER_DPI`; everything else stays vector.
 """
 
 from __future__ import annotations
@@ -30,6 +36,7 @@ from matplotlib.layout_engine import PlaceHolderLayoutEngine
 
 __all__ = [
     "CM",
+    "RASTER_DPI",
     "FIGURE_RC",
     "FONT_FAMILY",
     "figure_style",
@@ -50,6 +57,9 @@ name 'DejaVu Sans', and its font lookup prefers the copy it found first, so
 registering the shipped files under their own name would silently draw with
 matplotlib's copy. A private name makes the shipped files the ones used.
 """
+
+RASTER_DPI = 300
+"""Resolution of the rasterized parts of SVG output (print quality; 150 dpi PNGs are for screens)."""
 
 _FONT_FILES = ("DejaVuSans.ttf", "DejaVuSans-Bold.ttf")
 
@@ -150,11 +160,19 @@ def freeze_layout(fig: Figure) -> None:
     previous positions, so a second save of the same figure can differ in
     the last bits of a clip box and hence in an SVG id. Every sitrep figure
     function calls this last, so each save draws the same positions.
+
+    The engine is then removed altogether (``set_layout_engine(None)``, not
+    ``"none"``, which would leave a placeholder engine): with any engine set,
+    ``savefig`` first draws the whole figure once more to let the engine
+    measure it, and in vector output that extra draw really rasterizes the
+    rasterized artists (the district fills of large maps), doubling the cost
+    of every SVG.
     """
     engine = fig.get_layout_engine()
     if engine is not None and not isinstance(engine, PlaceHolderLayoutEngine):
         engine.execute(fig)
-    fig.set_layout_engine("none")
+    with matplotlib.rc_context({"figure.autolayout": False, "figure.constrained_layout.use": False}):
+        fig.set_layout_engine(None)  # with both settings off, None means no engine at all
 
 
 def figure_to_svg(fig: Figure) -> bytes:
@@ -170,12 +188,24 @@ def figure_to_svg(fig: Figure) -> bytes:
         UTF-8 SVG. No date is written (``metadata={'Date': None}``) and the
         element ids come from a pinned ``svg.hashsalt``, so the same figure
         gives the same bytes in every run. Text is drawn as outlines (see
-        the module notes).
+        the module notes). When the figure holds rasterized artists they are
+        embedded as PNG at :data:`RASTER_DPI` (at the figure's own dpi if
+        that is higher); a figure without any is written exactly as before.
     """
     buffer = io.BytesIO()
+    options: dict[str, Any] = {}
+    if _has_raster_parts(fig):
+        options["dpi"] = max(RASTER_DPI, int(fig.dpi))
     with figure_style():
-        fig.savefig(buffer, format="svg", metadata={"Date": None})
+        fig.savefig(buffer, format="svg", metadata={"Date": None}, **options)
     return buffer.getvalue()
+
+
+def _has_raster_parts(fig: Figure) -> bool:
+    """Whether vector output of ``fig`` embeds any image (rasterized artists or z-order)."""
+    if any(ax.get_rasterization_zorder() is not None for ax in fig.axes):
+        return True
+    return bool(fig.findobj(match=lambda artist: bool(artist.get_rasterized()), include_self=False))
 
 
 def figure_to_png(fig: Figure, dpi: int = 150) -> bytes:

@@ -13,7 +13,17 @@ anticlockwise and holes clockwise, and every part becomes one
 :class:`matplotlib.path.Path` (holes included through ``MOVETO``/``CLOSEPOLY``
 codes). Parts of one class share one :class:`~matplotlib.collections.PathCollection`
 (one fill, hatch and outline per class; see :mod:`sitrep.render.palette`),
-which stays fast at thousands of districts. The map extent covers every
+which stays fast at thousands of districts. Above :data:`RASTER_MIN_PARTS`
+parts the district collections of a map panel are drawn below the panel's
+rasterization z-order (``Axes.set_rasterization_zorder``): PNG output is
+unchanged, and vector (SVG) output embeds all the panel's district fills and
+outlines as one image at :data:`sitrep.render.figures.RASTER_DPI` while
+text, legend, scale bar and north arrow stay vector. (Tens of thousands of vector
+paths make an SVG of tens of megabytes that browsers and the PDF engine draw
+one element at a time; at that density no single outline can be told apart
+on paper anyway.) The drawing paths of one set of geometries are built once
+and reused by every map of the report (:func:`_prepare` keeps the last few,
+keyed by the geometries' WKB checksum and CRS). The map extent covers every
 part, offshore islands included. Maps are north-up (the projected grid's y
 axis points up the page), have no axes frame, and carry a scale bar in km
 and a north arrow in a strip below the districts.
@@ -21,9 +31,12 @@ and a north arrow in a strip below the districts.
 
 from __future__ import annotations
 
+import collections
 import dataclasses
 import enum
+import hashlib
 import math
+import threading
 from collections.abc import Sequence
 from typing import Any
 
@@ -55,6 +68,7 @@ from sitrep.render.palette import (
 
 __all__ = [
     "LEGEND_LABELS",
+    "RASTER_MIN_PARTS",
     "SIMPLIFY_SHARE",
     "change_map",
     "cluster_map",
@@ -68,7 +82,26 @@ FloatArray = npt.NDArray[np.float64]
 IntArray = npt.NDArray[np.int64]
 
 SIMPLIFY_SHARE = 0.0005
-"""Drawing tolerance as a share of the larger side of the map extent (0.05 %)."""
+"""Drawing tolerance as a share of the larger side of the map extent (0.05 %).
+
+On a 17 cm wide map that is about 0.09 mm of paper, one pixel at 300 dpi, so
+the simplified outline cannot be told from the original at print size."""
+
+RASTER_MIN_PARTS = 1000
+"""Above this many polygon parts, the district collections are rasterized in vector output.
+
+Measured on the 2-core reference machine with ``benchmarks/bench_full.py``:
+WeasyPrint needs about 1 ms per SVG path element, so the report's eight map
+panels at 3,000 districts (24,000 paths) took about 25 s of PDF time and
+matplotlib's SVG writer another 3 s; as images they take well under a second.
+County- and state-sized reports (up to 1,000 parts) stay fully vector."""
+
+_RASTER_ZORDER = 0.5
+"""Artists below this z-order are rasterized together in vector output (see :func:`_zorder`)."""
+
+_CACHE_SIZE = 4
+_CACHE: collections.OrderedDict[tuple[str, str], _MapGeometry] = collections.OrderedDict()
+_CACHE_LOCK = threading.Lock()
 
 LEGEND_LABELS: dict[str, dict[str, str]] = {
     "terciles": {
@@ -128,31 +161,52 @@ class _MapGeometry:
     metres_per_unit: float
     n_districts: int
 
+    @property
+    def rasterize(self) -> bool:
+        """Whether the district collections are rasterized in vector output."""
+        return len(self.paths) > RASTER_MIN_PARTS
 
-def _ring_path_parts(coords: npt.NDArray[np.float64], ccw: bool) -> tuple[Any, Any]:
-    """Vertices and codes of one closed ring, turned to the wanted orientation."""
-    xy = coords[:, :2]
+
+def _part_paths(parts: npt.NDArray[np.object_]) -> tuple[Path, ...]:
+    """Each polygon (with its holes) as one Path: exterior anticlockwise, holes clockwise.
+
+    Vectorised over all parts: the rings' signed areas (shoelace formula,
+    ``0.5 * sum(x_i y_(i+1) - x_(i+1) y_i)``) decide which rings are reversed
+    (an exterior with area <= 0, a hole with area > 0); every ring starts with
+    ``MOVETO`` and ends with ``CLOSEPOLY`` (its repeated first point).
+    """
+    rings, ring_part = shapely.get_rings(parts, return_index=True)
+    xy, ring_of = shapely.get_coordinates(rings, return_index=True)
+    n_rings = len(rings)
+    counts = np.bincount(ring_of, minlength=n_rings)
+    ends = np.cumsum(counts)
+    starts = ends - counts
     x, y = xy[:, 0], xy[:, 1]
-    signed_area = 0.5 * float(np.dot(x[:-1], y[1:]) - np.dot(x[1:], y[:-1]))
-    if (signed_area > 0) != ccw:
-        xy = xy[::-1]
+    cross = x[:-1] * y[1:] - x[1:] * y[:-1]
+    same_ring = ring_of[:-1] == ring_of[1:]
+    area = 0.5 * np.bincount(ring_of[:-1][same_ring], weights=cross[same_ring], minlength=n_rings)
+    exterior = np.ones(n_rings, dtype=bool)
+    exterior[1:] = ring_part[1:] != ring_part[:-1]  # get_rings lists each exterior first
+    flip = (area > 0) != exterior
+    i = np.arange(len(xy))
+    order = np.where(flip[ring_of], starts[ring_of] + ends[ring_of] - 1 - i, i)
+    vertices = xy[order]
     codes = np.full(len(xy), Path.LINETO, dtype=Path.code_type)
-    codes[0] = Path.MOVETO
-    codes[-1] = Path.CLOSEPOLY
-    return xy, codes
-
-
-def _part_path(polygon: shapely.Polygon) -> Path:
-    """One polygon (with its holes) as a Path: exterior anticlockwise, holes clockwise."""
-    pieces = [_ring_path_parts(np.asarray(polygon.exterior.coords), ccw=True)]
-    pieces += [_ring_path_parts(np.asarray(r.coords), ccw=False) for r in polygon.interiors]
-    vertices = np.concatenate([v for v, _ in pieces])
-    codes = np.concatenate([c for _, c in pieces])
-    return Path(vertices, codes)
+    codes[starts] = Path.MOVETO
+    codes[ends - 1] = Path.CLOSEPOLY
+    part_ends = ends[np.flatnonzero(np.append(ring_part[1:] != ring_part[:-1], True))]
+    part_starts = np.concatenate([[0], part_ends[:-1]])
+    return tuple(
+        Path(vertices[a:b], codes[a:b]) for a, b in zip(part_starts, part_ends, strict=True)
+    )
 
 
 def _prepare(geoms: gpd.GeoSeries) -> _MapGeometry:
-    """Check the geometries and build their drawing paths (see the module notes)."""
+    """Check the geometries and build their drawing paths (see the module notes).
+
+    The result for the same geometries (same WKB bytes in the same order and
+    the same CRS) is reused: the last :data:`_CACHE_SIZE` are kept.
+    """
     if not isinstance(geoms, gpd.GeoSeries):
         raise RenderError(
             f"map geometries must be a geopandas GeoSeries, got {type(geoms).__name__}; "
@@ -169,6 +223,25 @@ def _prepare(geoms: gpd.GeoSeries) -> _MapGeometry:
     values = np.asarray(geoms.array, dtype=object)
     if len(values) == 0:
         raise RenderError("no district geometries to draw, got an empty GeoSeries")
+    digest = hashlib.sha256()
+    for wkb in shapely.to_wkb(values):
+        digest.update(b"\x00" if wkb is None else len(wkb).to_bytes(8, "little") + wkb)
+    key = (digest.hexdigest(), crs.to_wkt())
+    with _CACHE_LOCK:
+        cached = _CACHE.get(key)
+        if cached is not None:
+            _CACHE.move_to_end(key)
+            return cached
+    geometry = _build_geometry(values, metres_per_unit)
+    with _CACHE_LOCK:
+        _CACHE[key] = geometry
+        while len(_CACHE) > _CACHE_SIZE:
+            _CACHE.popitem(last=False)
+    return geometry
+
+
+def _build_geometry(values: npt.NDArray[np.object_], metres_per_unit: float) -> _MapGeometry:
+    """Check polygon types, simplify for drawing and build one Path per part."""
     type_ids = shapely.get_type_id(values)
     bad = np.flatnonzero(~np.isin(type_ids, (3, 6)) | shapely.is_empty(values))
     if bad.size:
@@ -185,7 +258,7 @@ def _prepare(geoms: gpd.GeoSeries) -> _MapGeometry:
     )
     simple = np.where(lost, values, simple)
     parts, owner = shapely.get_parts(simple, return_index=True)
-    paths = tuple(_part_path(p) for p in parts)
+    paths = _part_paths(parts)
     return _MapGeometry(
         paths=paths,
         owner=np.asarray(owner, dtype=np.int64),
@@ -212,10 +285,12 @@ def _draw_classes(
 ) -> None:
     """Fill each district with its class's style: one PathCollection per class."""
     base_width = _border_width(geometry)
-    per_part = [classes[i] for i in geometry.owner]
+    per_district = np.empty(len(classes), dtype=object)
+    per_district[:] = list(classes)
+    per_part = per_district[geometry.owner]
     for key, style in styles.items():
-        idx = [i for i, c in enumerate(per_part) if c == key]
-        if not idx:
+        idx = np.flatnonzero(per_part == key)
+        if not idx.size:
             continue
         width = base_width if style.edge_width is None else style.edge_width * base_width / 0.35
         collection = PathCollection(
@@ -226,10 +301,29 @@ def _draw_classes(
             linestyles=style.edge_style,
             hatch=style.hatch or None,
             hatchcolor=style.hatch_colour,
-            zorder=2 if style.edge_width is not None else 1,
+            zorder=_zorder(geometry, outlined=style.edge_width is not None),
             gid=f"class-{key}",
         )
         ax.add_collection(collection, autolim=False)
+    _rasterize_districts(ax, geometry)
+
+
+def _zorder(geometry: _MapGeometry, *, outlined: bool) -> float:
+    """Drawing order of a district collection: outlined classes above plain fills.
+
+    When the districts are rasterized they sit below :data:`_RASTER_ZORDER`
+    (and every other artist of the map above it), so that all district
+    collections of one map panel become one image.
+    """
+    if geometry.rasterize:
+        return 0.2 if outlined else 0.1
+    return 2 if outlined else 1
+
+
+def _rasterize_districts(ax: Axes, geometry: _MapGeometry) -> None:
+    """Rasterize, in vector output, every artist below :data:`_RASTER_ZORDER` (the districts)."""
+    if geometry.rasterize:
+        ax.set_rasterization_zorder(_RASTER_ZORDER)
 
 
 @dataclasses.dataclass(frozen=True)
@@ -755,15 +849,15 @@ def comparison_map(
             shown_idx = np.flatnonzero(~per_part_missing)
             if shown_idx.size:
                 colours = cmap(norm(values[geometry.owner[shown_idx]]))
-                ax.add_collection(
-                    PathCollection(
-                        [geometry.paths[i] for i in shown_idx],
-                        facecolors=colours,
-                        edgecolors=COLOURS["border"],
-                        linewidths=base_width,
-                    ),
-                    autolim=False,
+                shown = PathCollection(
+                    [geometry.paths[i] for i in shown_idx],
+                    facecolors=colours,
+                    edgecolors=COLOURS["border"],
+                    linewidths=base_width,
                 )
+                if geometry.rasterize:
+                    shown.set_zorder(_zorder(geometry, outlined=False))
+                ax.add_collection(shown, autolim=False)
             classes = ["no data" if m else "shown" for m in missing]
             _draw_classes(ax, geometry, classes, {"no data": NO_DATA_STYLE})
             _frame(ax, geometry, panel, furniture=(k == 0))
