@@ -11,7 +11,7 @@ STAMP := $(VENV)/.installed
 $(STAMP): pyproject.toml
 	@test -x $(BIN)/python || $(PYTHON) -m venv $(VENV)
 	$(BIN)/python -m pip install --quiet --upgrade pip
-	$(BIN)/python -m pip install --quiet -e ".[test]"
+	$(BIN)/python -m pip install --quiet -e ".[test,dask]"
 	@touch $(STAMP)
 
 demo: $(STAMP)
@@ -28,6 +28,7 @@ lint: $(STAMP)
 bench: $(STAMP)
 	$(BIN)/python benchmarks/bench_analysis.py
 	$(BIN)/python benchmarks/bench_ingest.py
+	$(BIN)/python benchmarks/bench_full.py --sizes 50,500 --repeats 1
 
 clean:
 	rm -rf sitrep-demo build dist *.egg-info

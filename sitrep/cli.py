@@ -353,8 +353,27 @@ COMMANDS = {
 }
 
 
+def _drop_unusable_source_date_epoch() -> None:
+    """Ignore an inherited SOURCE_DATE_EPOCH that is not whole seconds (e.g. empty).
+
+    Libraries read it while they are imported (numpy's f2py does ``int('')``),
+    so it is checked before any heavy import; sitrep sets its own value from
+    the report week when it writes outputs.
+    """
+    import os
+
+    epoch = os.environ.get("SOURCE_DATE_EPOCH")
+    if epoch is not None and not (epoch.strip().isascii() and epoch.strip().isdigit()):
+        del os.environ["SOURCE_DATE_EPOCH"]
+        print(
+            f"note: SOURCE_DATE_EPOCH={epoch!r} is not whole seconds since 1970; ignored",
+            file=sys.stderr,
+        )
+
+
 def main(argv: Sequence[str] | None = None) -> int:
     """Run the CLI; returns the exit code (see the module docstring)."""
+    _drop_unusable_source_date_epoch()
     parser = _parser()
     try:
         args = parser.parse_args(argv)

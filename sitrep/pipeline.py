@@ -331,6 +331,7 @@ def _build(
         from sitrep.analysis.seasonal_context import seasonal_context
         from sitrep.analysis.week import analyse_week
         from sitrep.deliver.archive import (
+            check_outputs,
             next_version,
             reproducible_env,
             source_date_epoch,
@@ -424,6 +425,8 @@ def _build(
         }
         files["manifest.json"] = (json.dumps(manifest, indent=2, sort_keys=True) + "\n").encode()
 
+        # refuse a bad output folder before the immutable bundle exists
+        check_outputs(out_dir or config.output.folder, list(files))
         bundle = None
         if archive and config.output.archive is not None:
             archived = dict(files)

@@ -228,12 +228,6 @@ def test_h12_a_symlink_out_of_the_output_folder_is_refused(escaping: types.Simpl
     assert code == 2 and "control character" in err
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason="pipeline.py archives the bundle before write_outputs checks the output folder, so "
-    "a refused output folder still leaves a new bundle (a rerun then needs --reissue); fix: "
-    "call sitrep.deliver.archive.check_outputs(folder, list(files)) before write_bundle",
-)
 def test_h12_a_refused_output_folder_archives_nothing(escaping: types.SimpleNamespace) -> None:
     assert tree_hashes(escaping.week.archive) == {}
 

@@ -416,12 +416,6 @@ def test_h19_outputs_are_byte_identical_across_processes(glyphs: types.SimpleNam
     assert '"seed": 12345' in glyphs.out["manifest.json"].decode("utf-8")
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason="cli.main does not check SOURCE_DATE_EPOCH before the heavy imports: numpy.f2py "
-    "does int('') while scipy is imported, so `sitrep build` ends in 'internal error "
-    "(ValueError ...)'; fix needed in sitrep/cli.py (see the hardening report)",
-)
 def test_h19_empty_source_date_epoch_is_replaced_or_rejected_by_the_cli(
     glyphs: types.SimpleNamespace,
 ) -> None:

@@ -61,8 +61,11 @@ def test_letter_page_size(demo_build) -> None:  # type: ignore[no-untyped-def]
 def test_pdf_html_embeds_the_shipped_font(demo_build) -> None:  # type: ignore[no-untyped-def]
     _, result, _ = demo_build
     text = render_html_module.render_html(result.context, for_pdf=True)
-    assert text.count("src: url(data:font/ttf;base64,") == 2
-    assert "src: url(data:font/ttf" not in render_html_module.render_html(result.context)
+    fonts = re.findall(r"src: url\((file://[^)]+)\)", text)
+    assert [Path(f).name for f in fonts] == ["DejaVuSans.ttf", "DejaVuSans-Bold.ttf"]
+    assert all(f.startswith(render_html_module.asset_dir().as_uri()) for f in fonts)
+    # the screen HTML carries no font reference at all (self-contained)
+    assert "@font-face" not in render_html_module.render_html(result.context)
 
 
 def test_every_figure_has_alt_text_from_the_numbers(demo_build) -> None:  # type: ignore[no-untyped-def]

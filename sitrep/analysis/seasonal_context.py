@@ -61,7 +61,16 @@ class SeasonalContext:
 
 def pooled_by_week(frame: pd.DataFrame) -> pd.DataFrame:
     """Pooled ILI% per week: columns week, ili_visits, total_visits, pct (weeks sorted)."""
-    grouped = frame.groupby("week", sort=True)[["ili_visits", "total_visits"]].sum().reset_index()
+    week = frame["week"]
+    if hasattr(week, "cat"):
+        # group on the categorical's integer codes: hashing EpiWeek objects row by row is slow
+        codes = week.cat.codes
+        sums = frame[["ili_visits", "total_visits"]].groupby(codes.to_numpy(), sort=True).sum()
+        grouped = sums.reset_index(drop=True)
+        grouped.insert(0, "week", [week.cat.categories[c] for c in sums.index])
+        grouped = grouped.sort_values("week", kind="stable").reset_index(drop=True)
+    else:
+        grouped = frame.groupby("week", sort=True)[["ili_visits", "total_visits"]].sum().reset_index()
     total = grouped["total_visits"].astype(float)
     grouped["pct"] = np.where(total > 0, 100.0 * grouped["ili_visits"] / total.where(total > 0, 1.0), np.nan)
     return grouped

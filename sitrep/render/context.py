@@ -103,11 +103,17 @@ class ReportContext:
     inputs: tuple[tuple[str, str, str], ...]
     plain_sections: tuple[tuple[str, str], ...]
     """(heading, plain-language paragraph) for the communications draft."""
+    quality_pdf: tuple[QualityItem, ...] = ()
+    """The first findings, for the PDF (the HTML and validation.json list all)."""
+    quality_pdf_note: str = ""
     analysis_notes: tuple[str, ...] = ()
     """What the statistics left out or could not do this week (e.g. districts without data)."""
     reissue_note: str = ""
     """Set on a reissued report: which version this is, what it supersedes and why."""
 
+
+PDF_FINDINGS = 25
+"""Most data-quality findings listed in the PDF."""
 
 CAUTIONS = (
     "Figures are provisional: recent weeks usually rise as late reports arrive, and past weeks"
@@ -302,6 +308,13 @@ def build_context(
         versions=tuple(sorted(versions.items())),
         inputs=tuple((f.role, f.path.name, f.sha256) for f in inputs),
         plain_sections=plain,
+        quality_pdf=quality[:PDF_FINDINGS],
+        quality_pdf_note=(
+            f"The first {PDF_FINDINGS} of {len(quality)} findings; the HTML report and "
+            "validation.json list them all."
+            if len(quality) > PDF_FINDINGS
+            else ""
+        ),
         analysis_notes=tuple(dict.fromkeys(analysis.notes)),
         reissue_note=(
             f"This is version {reissue[0]} of the week {week.week} report; it supersedes version "
