@@ -104,3 +104,18 @@ def test_one_past_season_says_which_thresholds_are_missing(tmp_path: Path) -> No
     assert baseline_row.value == "not available"
     assert "0.0%" not in context.key_messages[1]
     assert "not available" in context.key_messages[1].lower()
+
+
+def test_pdf_lists_at_most_25_findings_and_says_so(demo_build) -> None:  # type: ignore[no-untyped-def]
+    from sitrep.render.context import PDF_FINDINGS, QualityItem
+
+    _, result, _ = demo_build
+    items = tuple(QualityItem("warning", "value-spike", f"t.csv, line {i}", "X", f"finding {i}") for i in range(2, 42))
+    context = dataclasses.replace(
+        result.context, quality=items, quality_pdf=items[:PDF_FINDINGS],
+        quality_pdf_note=f"The first {PDF_FINDINGS} of {len(items)} findings; the HTML report and validation.json list them all.",
+    )
+    pdf_html = render_html_module.render_html(context, for_pdf=True)
+    screen = render_html_module.render_html(context)
+    assert pdf_html.count("<td>value-spike</td>") == 25 and "The first 25 of 40 findings" in pdf_html
+    assert screen.count("<td>value-spike</td>") == 40 and "The first 25" not in screen
