@@ -119,3 +119,17 @@ def test_pdf_lists_at_most_25_findings_and_says_so(demo_build) -> None:  # type:
     screen = render_html_module.render_html(context)
     assert pdf_html.count("<td>value-spike</td>") == 25 and "The first 25 of 40 findings" in pdf_html
     assert screen.count("<td>value-spike</td>") == 40 and "The first 25" not in screen
+
+
+def test_report_css_text_colours_meet_wcag_aa() -> None:
+    """Every text colour in report.css against its background: >= 4.5:1 (WCAG 2.1 SC 1.4.3)."""
+    from sitrep.render.palette import contrast_ratio
+
+    css = (TEMPLATES / "report.css").read_text(encoding="utf-8")
+    colours = dict(re.findall(r"--([a-z]+): (#[0-9a-f]{6})", css))
+    pairs = [("ink", "#ffffff"), ("slate", "#ffffff"), ("muted", "#ffffff"), ("ink", colours["band"]),
+             ("muted", "#eef3f6"), ("slate", "#eef3f6")]
+    for text, background in pairs:
+        assert contrast_ratio(colours[text], background) >= 4.5, (text, background)
+    for hex_colour in re.findall(r"color: (#[0-9a-f]{6})", css):
+        assert contrast_ratio(hex_colour, "#ffffff") >= 4.5, hex_colour
