@@ -566,7 +566,7 @@ def test_fast_and_exact_parsers_agree(tmp_path: Path) -> None:
     rows = changed(clean_rows(), "001", WEEKS[0], "district_name", '"Arden, upper"')
     text = write_csv(tmp_path / "q.csv", rows).read_text(encoding="utf-8")
     fast = read_mod._csv_fast(text.encode("utf-8"), text, ",")
-    exact = read_mod._csv_exact(text, ",", read_mod._Collector("q.csv"))
+    exact = read_mod._csv_exact(text, ",", read_mod.FindingCollector("q.csv"))
     assert fast is not None and exact is not None
     assert fast.header == exact.header
     assert (fast.lines == exact.lines).all()

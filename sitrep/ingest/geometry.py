@@ -20,8 +20,8 @@ import numpy as np
 
 from sitrep.config import InputSettings
 from sitrep.errors import InputError
-from sitrep.ingest.read import sort_findings
-from sitrep.model import Districts, Finding, InputFile, Severity, ValidationReport
+from sitrep.ingest.read import FindingCollector
+from sitrep.model import Districts, InputFile, Severity, ValidationReport
 
 __all__ = [
     "GAP_SHARE",
@@ -82,25 +82,6 @@ REPORT_FONTS = ("DejaVuSans.ttf", "DejaVuSans-Bold.ttf")
 _GEOJSON = {".geojson", ".json"}
 _GPKG = {".gpkg"}
 _SHP = {".shp"}
-
-
-class _Out:
-    def __init__(self, file: str) -> None:
-        self.file = file
-        self.items: list[Finding] = []
-
-    def add(self, severity: Severity, rule: str, message: str, **where: Any) -> None:
-        self.items.append(Finding(severity, rule, message, file=self.file, **where))
-
-    def error(self, rule: str, message: str, **where: Any) -> None:
-        self.add(Severity.ERROR, rule, message, **where)
-
-    @property
-    def has_errors(self) -> bool:
-        return any(f.severity is Severity.ERROR for f in self.items)
-
-    def report(self) -> ValidationReport:
-        return ValidationReport(sort_findings(self.items))
 
 
 def read_districts(
@@ -171,7 +152,7 @@ def read_districts(
         permission); the message names the path.
     """
     path = Path(path)
-    out = _Out(path.name)
+    out = FindingCollector(path.name)
     try:
         size = path.stat().st_size
     except OSError as exc:
@@ -221,7 +202,7 @@ def read_districts(
     return Districts(frame=result, source=source), out.report()
 
 
-def _read_layer(path: Path, ext: str, settings: InputSettings, out: _Out) -> Any:
+def _read_layer(path: Path, ext: str, settings: InputSettings, out: FindingCollector) -> Any:
     import geopandas as gpd
     import pyogrio
 
@@ -273,7 +254,7 @@ def _read_layer(path: Path, ext: str, settings: InputSettings, out: _Out) -> Any
     return frame
 
 
-def _check_crs(frame: Any, ext: str, settings: InputSettings, out: _Out) -> Any:
+def _check_crs(frame: Any, ext: str, settings: InputSettings, out: FindingCollector) -> Any:
     from pyproj import CRS
     from pyproj.exceptions import CRSError
 
@@ -333,7 +314,7 @@ def _check_crs(frame: Any, ext: str, settings: InputSettings, out: _Out) -> Any:
     return frame
 
 
-def _check_features(frame: Any, settings: InputSettings, out: _Out) -> Any:
+def _check_features(frame: Any, settings: InputSettings, out: FindingCollector) -> Any:
     import geopandas as gpd
     import pandas as pd
     import shapely
@@ -489,7 +470,7 @@ def _safe_repair(geom: Any) -> Any:
     return fixed
 
 
-def _check_extent(frame: Any, settings: InputSettings, out: _Out) -> bool:
+def _check_extent(frame: Any, settings: InputSettings, out: FindingCollector) -> bool:
     """False (with an error) when the layer is not inside ``settings.boundaries_extent``."""
     extent = settings.boundaries_extent
     if extent is None:
@@ -518,7 +499,7 @@ def _check_extent(frame: Any, settings: InputSettings, out: _Out) -> bool:
     return False
 
 
-def _check_gaps(frame: Any, out: _Out) -> None:
+def _check_gaps(frame: Any, out: FindingCollector) -> None:
     """Warn about districts that touch none but lie within a sliver of another."""
     import shapely
 
@@ -595,7 +576,7 @@ def missing_glyphs(text: str) -> tuple[str, ...]:
     return tuple(seen)
 
 
-def _check_glyphs(frame: Any, settings: InputSettings, out: _Out) -> None:
+def _check_glyphs(frame: Any, settings: InputSettings, out: FindingCollector) -> None:
     for ident, name in zip(frame["district_id"], frame["district_name"], strict=True):
         missing = missing_glyphs(str(name))
         if not missing:

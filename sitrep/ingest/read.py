@@ -30,7 +30,7 @@ from sitrep.errors import InputError
 from sitrep.model import CountTable, Finding, InputFile, Severity, ValidationReport
 from sitrep.weeks import EpiWeek, WeekSystem
 
-__all__ = ["RULES", "SOURCE_COLUMNS_ATTR", "read_count_table", "sort_findings"]
+__all__ = ["RULES", "SOURCE_COLUMNS_ATTR", "FindingCollector", "read_count_table", "sort_findings"]
 
 RULES: tuple[tuple[str, str], ...] = (
     ("file-too-large", "the file is larger than input.max_input_mb (checked before parsing)"),
@@ -102,8 +102,8 @@ class _Raw:
     """Column positions whose whole storage type is numeric (Parquet)."""
 
 
-class _Collector:
-    """Accumulates findings for one file."""
+class FindingCollector:
+    """Accumulates the findings for one file (shared by the readers and the rules)."""
 
     def __init__(self, file: str) -> None:
         self.file = file
@@ -207,7 +207,7 @@ def read_count_table(
     a number has already lost any leading zero.
     """
     path = Path(path)
-    out = _Collector(path.name)
+    out = FindingCollector(path.name)
     try:
         size = path.stat().st_size
     except OSError as exc:
@@ -265,7 +265,7 @@ def read_count_table(
 
 
 def _decode(
-    data: bytes, encoding: str, out: _Collector, delimiter: str = ","
+    data: bytes, encoding: str, out: FindingCollector, delimiter: str = ","
 ) -> str | None:
     codec = "utf-8-sig" if encoding.lower().replace("_", "-") in ("utf-8", "utf8") else encoding
     try:
@@ -314,7 +314,7 @@ def _column_at(data: bytes, line_start: int, position: int, delimiter: str) -> s
     return _nfc(header[index]).strip() if 0 <= index < len(header) else None
 
 
-def _read_csv(data: bytes, settings: InputSettings, out: _Collector) -> _Raw | None:
+def _read_csv(data: bytes, settings: InputSettings, out: FindingCollector) -> _Raw | None:
     text = _decode(data, settings.encoding, out, settings.delimiter)
     if text is None:
         return None
@@ -405,7 +405,7 @@ def _nonblank_lines(data: bytes) -> np.ndarray | None:
     return (np.flatnonzero(length > 0) + 1).astype(np.int64)
 
 
-def _csv_exact(text: str, delimiter: str, out: _Collector) -> _Raw | None:
+def _csv_exact(text: str, delimiter: str, out: FindingCollector) -> _Raw | None:
     """Parse with the csv module, which knows each record's first line."""
     reader = csv.reader(io.StringIO(text, newline=""), delimiter=delimiter, strict=True)
     header: list[str] | None = None
@@ -458,7 +458,7 @@ def _number_text(value: float | int, decimal: str) -> str:
     return repr(float(value)).replace(".", decimal)
 
 
-def _read_xlsx(data: bytes, settings: InputSettings, out: _Collector) -> _Raw | None:
+def _read_xlsx(data: bytes, settings: InputSettings, out: FindingCollector) -> _Raw | None:
     import openpyxl
 
     if not data:
@@ -533,7 +533,7 @@ def _read_xlsx(data: bytes, settings: InputSettings, out: _Collector) -> _Raw | 
     return raw
 
 
-def _read_parquet(data: bytes, settings: InputSettings, out: _Collector) -> _Raw | None:
+def _read_parquet(data: bytes, settings: InputSettings, out: FindingCollector) -> _Raw | None:
     import pyarrow as pa
     import pyarrow.compute as pc
     import pyarrow.parquet as pq
@@ -586,7 +586,7 @@ def _opt(name: str | None) -> str | None:
     return name if name else None
 
 
-def _week_spec(cmap: ColumnMap, out: _Collector) -> tuple[str, list[str]] | None:
+def _week_spec(cmap: ColumnMap, out: FindingCollector) -> tuple[str, list[str]] | None:
     """Which week representation the column map declares: kind and column names."""
     alternatives: list[tuple[str, list[str]]] = []
     year, number = _opt(cmap.year), _opt(cmap.week_number)
@@ -666,7 +666,7 @@ def _apply_unique(
 
 
 def _type_table(
-    raw: _Raw, settings: InputSettings, system: WeekSystem, out: _Collector
+    raw: _Raw, settings: InputSettings, system: WeekSystem, out: FindingCollector
 ) -> pd.DataFrame | None:
     cmap = settings.columns
     names = [_nfc(h).strip() for h in raw.header]
@@ -945,7 +945,7 @@ def _type_weeks(
     names: list[str],
     system: WeekSystem,
     id_at: Callable[[int], str | None],
-    out: _Collector,
+    out: FindingCollector,
 ) -> tuple[np.ndarray | None, list[EpiWeek]]:
     """Parse the week cells; return codes into a list of distinct EpiWeeks."""
     kind = spec[0]

@@ -14,14 +14,13 @@ import difflib
 import re
 import unicodedata
 from collections.abc import Sequence
-from typing import Any
 
 import numpy as np
 import pandas as pd
 
 from sitrep.config import ValidationSettings
-from sitrep.ingest.read import SOURCE_COLUMNS_ATTR, sort_findings
-from sitrep.model import CountTable, Districts, Finding, Severity, ValidationReport
+from sitrep.ingest.read import SOURCE_COLUMNS_ATTR, FindingCollector
+from sitrep.model import CountTable, Districts, Severity, ValidationReport
 from sitrep.weeks import EpiWeek, season_of
 
 __all__ = ["RULES", "validate_against_prior", "validate_table"]
@@ -143,18 +142,6 @@ def _arrays(table: CountTable) -> _Arrays:
     )
 
 
-class _Out:
-    def __init__(self, file: str) -> None:
-        self.file = file
-        self.items: list[Finding] = []
-
-    def add(self, severity: Severity, rule: str, message: str, **where: Any) -> None:
-        self.items.append(Finding(severity, rule, message, file=self.file, **where))
-
-    def report(self) -> ValidationReport:
-        return ValidationReport(sort_findings(self.items))
-
-
 def _fmt(x: float) -> str:
     return str(int(x)) if np.isfinite(x) and float(x).is_integer() else f"{x:g}"
 
@@ -248,7 +235,7 @@ def validate_table(
     the minimum of 5 weeks are common practice, not published values.
     """
     a = _arrays(table)
-    out = _Out(a.file)
+    out = FindingCollector(a.file)
     n = len(a.ids)
     if n == 0:
         return out.report()
@@ -486,7 +473,7 @@ def _near_matches(ident: str, candidates: Sequence[str]) -> list[str]:
     return found[:3]
 
 
-def _names_differ(a: _Arrays, boundary_names: dict[str, str], out: _Out) -> None:
+def _names_differ(a: _Arrays, boundary_names: dict[str, str], out: FindingCollector) -> None:
     """One info finding per district whose table name differs from the boundary name."""
     name_codes, name_uniques = pd.factorize(a.names)
     pair = a.id_codes.astype(np.int64) * (len(name_uniques) + 1) + name_codes
@@ -516,7 +503,7 @@ def _squash_keep(text: str) -> list[str]:
     return unicodedata.normalize("NFC", text).casefold().split()
 
 
-def _spikes(a: _Arrays, settings: ValidationSettings, out: _Out) -> None:
+def _spikes(a: _Arrays, settings: ValidationSettings, out: FindingCollector) -> None:
     z_limit = settings.spike_robust_z
     min_weeks = int(settings.spike_min_weeks)
     floor = float(settings.spike_mad_floor_pp)
@@ -616,7 +603,7 @@ def validate_against_prior(
         Findings (on the current table's file) sorted by file, line, column, rule.
     """
     cur, pri = _arrays(current), _arrays(prior)
-    out = _Out(cur.file)
+    out = FindingCollector(cur.file)
     if not cur.weeks or not pri.weeks:
         return out.report()
     c_week, c_id = cur.col("week"), cur.col("district_id")
@@ -716,7 +703,7 @@ def _lookup(keys_from: np.ndarray, keys_to: np.ndarray) -> np.ndarray:
     return np.where(pos >= 0, rows.to_numpy()[np.maximum(pos, 0)], -1)
 
 
-def _revisions(cur: _Arrays, pri: _Arrays, settings: ValidationSettings, out: _Out) -> None:
+def _revisions(cur: _Arrays, pri: _Arrays, settings: ValidationSettings, out: FindingCollector) -> None:
     vocab: dict[str, int] = {}
     kc, kp = _keys(cur, vocab), _keys(pri, vocab)
     cur_latest_ord = int(cur.ordinal.max())
@@ -806,7 +793,7 @@ def _revisions(cur: _Arrays, pri: _Arrays, settings: ValidationSettings, out: _O
         )
 
 
-def _completeness(cur: _Arrays, pri: _Arrays, settings: ValidationSettings, out: _Out) -> None:
+def _completeness(cur: _Arrays, pri: _Arrays, settings: ValidationSettings, out: FindingCollector) -> None:
     last = int(cur.ordinal.max())
     ref = int(pri.ordinal.max())
     if ref >= last:
@@ -839,7 +826,7 @@ def _completeness(cur: _Arrays, pri: _Arrays, settings: ValidationSettings, out:
             )
 
 
-def _stale(cur: _Arrays, pri: _Arrays, out: _Out) -> None:
+def _stale(cur: _Arrays, pri: _Arrays, out: FindingCollector) -> None:
     last = int(cur.ordinal.max())
     vocab: dict[str, int] = {}
     kc, kp = _keys(cur, vocab), _keys(pri, vocab)
