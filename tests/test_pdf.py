@@ -8,17 +8,14 @@ http:// resources, attached local files), H19/[E3] (SOURCE_DATE_EPOCH) and H20
 from __future__ import annotations
 
 import base64
-import http.server
 import io
 import multiprocessing
-import struct
-import threading
-import zlib
 from collections.abc import Iterator
 from pathlib import Path
 
 import pypdf
 import pytest
+from http_fixtures import Canary, png_1x1
 
 from sitrep.deliver.archive import reproducible_env
 from sitrep.deliver.pdf import RefusedResource, html_to_pdf, make_url_fetcher, pdf_variants
@@ -27,58 +24,6 @@ from sitrep.errors import ConfigError, DeliveryError
 ASSETS = Path(__file__).resolve().parents[1] / "sitrep" / "assets"
 EPOCH = 1795867200  # 2026-11-28T12:00Z, end of MMWR week 2026-W47 (see test_archive.py)
 CANARY_TEXT = b"CANARY-7f3a9c-SECRET"
-
-
-def png_1x1(rgb: tuple[int, int, int]) -> bytes:
-    """A valid 1x1 RGB PNG built from the PNG specification (RFC 2083 / ISO 15948 chunks)."""
-
-    def chunk(kind: bytes, data: bytes) -> bytes:
-        return (
-            struct.pack(">I", len(data)) + kind + data + struct.pack(">I", zlib.crc32(kind + data))
-        )
-
-    header = struct.pack(">IIBBBBB", 1, 1, 8, 2, 0, 0, 0)
-    pixels = zlib.compress(b"\x00" + bytes(rgb))
-    return (
-        b"\x89PNG\r\n\x1a\n" + chunk(b"IHDR", header) + chunk(b"IDAT", pixels) + chunk(b"IEND", b"")
-    )
-
-
-class Canary:
-    """A loopback HTTP server that counts every request it gets."""
-
-    def __init__(self) -> None:
-        self.requests: list[str] = []
-        canary = self
-
-        class Handler(http.server.BaseHTTPRequestHandler):
-            def do_GET(self) -> None:  # noqa: N802 - http.server's naming
-                canary.requests.append(self.path)
-                body = png_1x1((255, 0, 0))
-                self.send_response(200)
-                self.send_header("Content-Type", "image/png")
-                self.send_header("Content-Length", str(len(body)))
-                self.end_headers()
-                self.wfile.write(body)
-
-            def log_message(self, *args: object) -> None:
-                pass
-
-        self.server = http.server.ThreadingHTTPServer(("127.0.0.1", 0), Handler)
-        self.server.timeout = 5
-        self.url = f"http://127.0.0.1:{self.server.server_address[1]}/"
-        self.thread = threading.Thread(
-            target=self.server.serve_forever, kwargs={"poll_interval": 0.05}
-        )
-
-    def __enter__(self) -> Canary:
-        self.thread.start()
-        return self
-
-    def __exit__(self, *exc: object) -> None:
-        self.server.shutdown()
-        self.server.server_close()
-        self.thread.join(5)
 
 
 @pytest.fixture
