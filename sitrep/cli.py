@@ -49,14 +49,16 @@ EPILOG = """exit codes: 0 done · 1 blocked by validation or unreadable input ·
 
 
 def _demo_inputs() -> Path:
-    """The demo scenario folder: ./demo_inputs, else the one beside the package source."""
-    here = Path.cwd() / "demo_inputs"
-    if (here / "sitrep.toml").is_file():
-        return here
-    beside = Path(__file__).resolve().parent.parent / "demo_inputs"
-    if (beside / "sitrep.toml").is_file():
-        return beside
-    raise ConfigError("demo_inputs/sitrep.toml not found; run from the sitrep source folder or pass --inputs")
+    """The demo scenario folder shipped inside the package (``sitrep.demo_inputs``)."""
+    import importlib.resources
+
+    folder = Path(str(importlib.resources.files("sitrep.demo_inputs")))
+    if not (folder / "sitrep.toml").is_file():
+        raise ConfigError(
+            f"the demo inputs are missing from the installed package ({folder}); reinstall "
+            "sitrep, or pass --inputs FOLDER"
+        )
+    return folder
 
 
 def _date_arg(text: str) -> dt.date:
@@ -83,7 +85,8 @@ def _parser() -> argparse.ArgumentParser:
 
     p = verb("demo", "build the invented demo week into an output folder")
     p.add_argument("--out", type=Path, default=Path("sitrep-demo"), help="output folder (default ./sitrep-demo)")
-    p.add_argument("--inputs", type=Path, default=None, help="demo inputs folder (default ./demo_inputs)")
+    p.add_argument("--inputs", type=Path, default=None,
+                   help="demo inputs folder (default: the copy shipped inside the package)")
 
     p = verb("build", "validate, analyse, render and archive this week's report")
     p.add_argument("--config", type=Path, action="append", default=None,
@@ -186,7 +189,6 @@ def _print_findings(report: ValidationReport, stream: object = None) -> None:
 
 def _cmd_demo(args: argparse.Namespace) -> int:
     import dataclasses
-
 
     inputs = args.inputs or _demo_inputs()
     config = _load(inputs / "sitrep.toml")
