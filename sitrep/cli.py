@@ -102,6 +102,9 @@ def _parser() -> argparse.ArgumentParser:
     p.add_argument("--reissue", metavar="REASON", default=None,
                    help="write a new version of an already archived week, giving the reason")
     p.add_argument("--no-archive", action="store_true", help="write the output folder only")
+    p.add_argument("--today", type=_date_arg, default=None, metavar="YYYY-MM-DD",
+                   help="the day the future-week rule compares with (default: today); for "
+                        "rebuilding or testing past weeks")
 
     p = verb("check", "validate the inputs only; print the findings")
     p.epilog = (
@@ -199,12 +202,20 @@ def _cmd_demo(args: argparse.Namespace) -> int:
     return _build(config, out, reissue=None, archive=True, demo=True)
 
 
-def _build(config: Config, out: Path | None, *, reissue: str | None, archive: bool, demo: bool = False) -> int:
+def _build(
+    config: Config,
+    out: Path | None,
+    *,
+    reissue: str | None,
+    archive: bool,
+    demo: bool = False,
+    today: dt.date | None = None,
+) -> int:
     from sitrep import pipeline
 
     try:
         result = pipeline.build(config, out_dir=out, archive=archive, reissue_reason=reissue,
-                                log=lambda m: print(m))
+                                today=today, log=lambda m: print(m))
     except ValidationFailed as exc:
         if exc.report is not None:
             _print_findings(exc.report, sys.stderr)
@@ -214,7 +225,8 @@ def _build(config: Config, out: Path | None, *, reissue: str | None, archive: bo
 
         if demo and isinstance(exc, ArchiveExists):
             print(f"note: {exc}")
-            result = pipeline.build(config, out_dir=out, archive=False, log=lambda m: print(m))
+            result = pipeline.build(config, out_dir=out, archive=False, today=today,
+                                    log=lambda m: print(m))
         else:
             raise
     for path in result.outputs:
@@ -234,7 +246,8 @@ def _cmd_build(args: argparse.Namespace) -> int:
         raise ConfigError("build needs --config FILE (repeatable) or --configs-dir FOLDER")
     batch = len(configs) > 1 or args.configs_dir is not None or args.scheduler is not None
     if not batch and args.workers is None:
-        return _build(_load(configs[0]), args.out, reissue=args.reissue, archive=not args.no_archive)
+        return _build(_load(configs[0]), args.out, reissue=args.reissue,
+                      archive=not args.no_archive, today=args.today)
     from sitrep.batch import batch_exit_code, run_batch, summary_table
 
     results = run_batch(
@@ -244,6 +257,7 @@ def _cmd_build(args: argparse.Namespace) -> int:
         out_root=args.out,
         archive=not args.no_archive,
         reissue_reason=args.reissue,
+        today=args.today,
     )
     print(summary_table(results))
     return batch_exit_code(results)
