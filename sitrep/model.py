@@ -166,7 +166,8 @@ class CountTable:
     def latest_week(self) -> EpiWeek:
         """The most recent week in the table."""
         week = self.frame["week"]
-        return week.max() if hasattr(week, "cat") and week.cat.ordered else max(week)
+        latest: EpiWeek = week.max() if hasattr(week, "cat") and week.cat.ordered else max(week)
+        return latest
 
 
 @dataclasses.dataclass(frozen=True, eq=False)

@@ -550,7 +550,7 @@ def _read_parquet(data: bytes, settings: InputSettings, out: FindingCollector) -
         )
         return None
     header = list(table.column_names)
-    columns: list[np.ndarray] = []
+    columns: list[_Col] = []
     numeric: set[int] = set()
     for i, name in enumerate(header):
         col = table.column(name)
@@ -736,8 +736,8 @@ def _type_table(
         blank &= empty_u[col.codes] if len(col.uniques) else True
     if blank.any():
         keep = ~blank
-        last_kept = np.flatnonzero(keep).max() if keep.any() else -1
-        for i in np.flatnonzero(blank):
+        last_kept = int(np.flatnonzero(keep).max()) if keep.any() else -1
+        for i in np.flatnonzero(blank).tolist():
             if i < last_kept:
                 out.add(
                     Severity.INFO,
@@ -784,7 +784,7 @@ def _type_table(
         )
     mask = raw.numeric_id_cells.get(pos_id)
     if mask is not None:
-        for i in np.flatnonzero(mask):
+        for i in np.flatnonzero(mask).tolist():
             ident = str(id_u[id_codes[i]])
             out.error(
                 "id-numeric",
@@ -797,7 +797,7 @@ def _type_table(
                 value=ident,
             )
     empty_ids = np.flatnonzero(np.array([not u.strip() for u in id_parsed], dtype=bool)[id_codes])
-    for i in empty_ids:
+    for i in empty_ids.tolist():
         out.error(
             "id-missing",
             "expected a district id, got an empty cell; fill in the id or delete the row",
@@ -1032,7 +1032,7 @@ def _type_weeks(
                     f"{message} ({sys_name} system, weeks.system); "
                     "give the week as declared in the column map"
                 )
-            for i in np.flatnonzero(codes == u):
+            for i in np.flatnonzero(codes == u).tolist():
                 out.error(
                     rule,
                     message,

@@ -86,7 +86,7 @@ class _Arrays:
     def col(self, internal: str) -> str:
         return self.columns.get(internal, internal)
 
-    def line(self, i: int) -> int | None:
+    def line(self, i: int | np.integer) -> int | None:
         value = int(self.lines[i])
         return value if value > 0 else None
 
@@ -692,7 +692,7 @@ def validate_against_prior(
 
 def _keys(a: _Arrays, vocab: dict[str, int]) -> np.ndarray:
     id_num = np.array([vocab.setdefault(u, len(vocab)) for u in a.id_uniques], dtype=np.int64)
-    return id_num[a.id_codes] * 1_000_000 + a.ordinal
+    return np.asarray(id_num[a.id_codes] * 1_000_000 + a.ordinal)
 
 
 def _lookup(keys_from: np.ndarray, keys_to: np.ndarray) -> np.ndarray:
@@ -700,7 +700,7 @@ def _lookup(keys_from: np.ndarray, keys_to: np.ndarray) -> np.ndarray:
     rows = pd.Series(np.arange(len(keys_from)), index=keys_from)
     rows = rows[~rows.index.duplicated(keep="first")]
     pos = rows.index.get_indexer(keys_to)
-    return np.where(pos >= 0, rows.to_numpy()[np.maximum(pos, 0)], -1)
+    return np.asarray(np.where(pos >= 0, rows.to_numpy()[np.maximum(pos, 0)], -1))
 
 
 def _revisions(cur: _Arrays, pri: _Arrays, settings: ValidationSettings, out: FindingCollector) -> None:
