@@ -688,7 +688,8 @@ def _spikes(
         gap[:, 8] = False
         ili[gap], tot[gap] = p_ili[gap], p_tot[gap]
     with np.errstate(divide="ignore", invalid="ignore"):
-        pct = np.where((tot > 0) & (ili <= tot), 100.0 * ili / tot, np.nan)  # else an error
+        valid = (tot > 0) & (ili >= 0) & (ili <= tot)  # other rows are errors of other rules
+        pct = np.where(valid, 100.0 * ili / tot, np.nan)
     now_ok = np.isfinite(pct[:, 8])
     past = pct[:, :8]
     n_past = np.isfinite(past).sum(axis=1)
@@ -732,7 +733,8 @@ def _spikes(
     with np.errstate(invalid="ignore"):
         own_z = np.abs(x - expected) / spread
     # ... and against the other districts: robust z of the log deviation from the movement
-    dev = np.log((x + floor) / (expected + floor))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        dev = np.log((x + floor) / (expected + floor))
     cross_z = np.full(len(x), np.inf)
     if usable.sum() >= _SPIKE_MIN_DISTRICTS:
         centre = float(np.median(dev[usable]))
