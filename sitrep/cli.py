@@ -162,29 +162,40 @@ def _load(path: Path) -> Config:
 
 
 def _print_findings(report: ValidationReport, stream: object = None) -> None:
-    """Print findings as a table: severity, rule, file:line, column, district, message."""
+    """Print findings as a table: severity, rule, file:line, column, district, message.
+
+    Findings of one rule on one file and column are printed as one line with
+    their count and first locations; ``check --json`` and validation.json list
+    every one.
+    """
     out = stream or sys.stdout
     if not report.findings:
         print("no findings: the inputs passed every check", file=out)  # type: ignore[arg-type]
         return
     header = ("severity", "rule", "file:line", "column", "district", "message")
-    rows = [
-        (
-            f.severity.value,
-            f.rule,
-            (f.file or "-") + (f":{f.line}" if f.line is not None else ""),
-            f.column or "-",
-            f.district_id or "-",
-            f.message,
+    groups = report.grouped()
+    rows = []
+    for g in groups:
+        f = g.first
+        districts = g.districts()
+        rows.append(
+            (
+                f.severity.value,
+                f.rule,
+                (f.file or "-") + (f":{f.line}" if f.line is not None else ""),
+                f.column or "-",
+                districts[0] if len(districts) == 1 else (f"{len(districts)} districts" if districts else "-"),
+                g.message(),
+            )
         )
-        for f in report.findings
-    ]
     widths = [max(len(row[i]) for row in (header, *rows)) for i in range(5)]
     for row in (header, *rows):
         cells = "  ".join(cell.ljust(width) for cell, width in zip(row[:5], widths, strict=True))
         print(f"{cells}  {row[5]}", file=out)  # type: ignore[arg-type]
     notes = len(report.findings) - len(report.errors) - len(report.warnings)
     summary = f"{len(report.errors)} error(s), {len(report.warnings)} warning(s), {notes} note(s)"
+    if len(groups) < len(report.findings):
+        summary += f" in {len(groups)} group(s)"
     if report.blocked:
         summary += ": blocked, a build would stop here and nothing would be archived or sent"
     print(summary, file=out)  # type: ignore[arg-type]

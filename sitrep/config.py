@@ -83,6 +83,12 @@ class InputSettings:
     sheet: str | None = None
     """Worksheet name for XLSX tables (first sheet when unset)."""
     strip_id_whitespace: bool = True
+    id_zero_pad: int | None = None
+    """Pad all-digit district ids shorter than this many digits with leading zeros (table and
+    boundaries), e.g. for ids a spreadsheet stored as numbers; unset: ids are used as read."""
+    weekly_file: bool | None = None
+    """The table holds one week only (true) or the season to date (false); unset: one week when
+    last week's file (prior_table) holds one week, else season to date."""
     max_input_mb: float = 200.0
     columns: ColumnMap = dataclasses.field(default_factory=ColumnMap)
 
@@ -108,9 +114,11 @@ class ValidationSettings:
     completeness_drop_share: float = 0.30
     """Warn when total visits or reporting sites fall by more than this share."""
     spike_robust_z: float = 5.0
-    """Robust z (|x - median| / MAD over the last 8 weeks) above which a value is flagged."""
+    """Robust z above which a value is flagged: against the district's previous weeks scaled by
+    the other districts' movement, and against the other districts' changes (both must exceed)."""
     spike_min_weeks: int = 5
-    """Fewest of the previous 8 weeks with data for the spike rule to run."""
+    """Fewest of the previous 8 weeks for their median to be the spike rule's reference; with
+    fewer, the latest previous week (from this table or last week's) is the reference."""
     spike_mad_floor_pp: float = 0.2
     """Smallest spread used by the spike rule, in percentage points (common practice)."""
     rate_tolerance_pp: float = 0.05
@@ -371,6 +379,8 @@ def _check_ranges(c: Config) -> None:
     for ok, message, value in checks:
         if not ok:
             raise ConfigError(f"{message}, got {value!r}")
+    if c.input.id_zero_pad is not None and not 1 <= c.input.id_zero_pad <= 20:
+        raise ConfigError(f"input.id_zero_pad must be 1..20 digits, got {c.input.id_zero_pad!r}")
     if len(c.input.delimiter) != 1:
         raise ConfigError(f"input.delimiter must be one character, got {c.input.delimiter!r}")
     if c.input.delimiter == c.input.decimal:

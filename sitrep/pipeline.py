@@ -160,8 +160,12 @@ def read_inputs(
     start = config.weeks.season_start_week
     with _timed(timings, "validate"):
         if table is not None:
+            weekly, inferred = _weekly_file(config, prior)
             report = report.merged(
-                validate_table(table, districts, config.validation, today=today, season_start_week=start)
+                validate_table(
+                    table, districts, config.validation, today=today, season_start_week=start,
+                    weekly_file=weekly, weekly_inferred=inferred, prior=prior,
+                )
             )
         if history is not None:
             report = report.merged(
@@ -173,6 +177,16 @@ def read_inputs(
         if table is not None and prior is not None:
             report = report.merged(validate_against_prior(table, prior, config.validation))
     return Inputs(table, prior, history, districts, ValidationReport(_dedupe(report.findings)))
+
+
+def _weekly_file(config: Config, prior: CountTable | None) -> tuple[bool, bool]:
+    """Whether the table is one week (``input.weekly_file``, else: last week's file held one
+    week), and whether that was inferred rather than declared."""
+    if config.input.weekly_file is not None:
+        return config.input.weekly_file, False
+    if prior is not None and len(prior.weeks) == 1:
+        return True, True
+    return False, False
 
 
 def _dedupe(findings: tuple[Any, ...]) -> tuple[Any, ...]:

@@ -132,11 +132,15 @@ def test_check_demo_inputs_passes_with_warnings(
     assert code == 0, err
     header = out.splitlines()[0].split()
     assert header == ["severity", "rule", "file:line", "column", "district", "message"]
-    # The demo's known spike (district 039) is reported at its row in the file.
-    row = next(line for line in out.splitlines() if line.startswith("warning") and " 039 " in line)
-    assert f"extract_2026-W47.csv:{line_of(W47, '039', '2026-W47')}" in row
-    assert "value-spike" in row and "ili_visits" in row
-    assert re.search(r"^0 error\(s\), \d+ warning\(s\), 0 note\(s\)$", out, flags=re.MULTILINE)
+    # The demo's revisions are one grouped line, located at the first revised row of the file.
+    row = next(line for line in out.splitlines() if line.startswith("warning   revision-large"))
+    assert f"extract_2026-W47.csv:{line_of(W47, '002', '2026-W46')}" in row
+    assert "4 districts" in row and "4 cells" in row
+    # The demo week rises everywhere: no district is a value spike against that movement.
+    assert "value-spike" not in out
+    assert re.search(
+        r"^0 error\(s\), \d+ warning\(s\), 0 note\(s\) in \d+ group\(s\)$", out, flags=re.MULTILINE
+    )
 
     code, out, _ = run(capsys, "check", "--config", str(config), "--today", TODAY, "--json")
     doc = json.loads(out)

@@ -172,7 +172,13 @@ def test_ids_are_text_stripped_and_nfc(tmp_path: Path) -> None:
     assert nfd != "Thévrisande"
     rows = changed(rows, "002", WEEKS[0], "district_name", nfd)
     table, report = read(write_csv(tmp_path / "ids.csv", rows))
-    assert report.findings == ()
+    # the stripped ids are reported as one note listing their lines
+    (note,) = report.findings
+    stripped_lines = [line_of(rows, " 003", WEEKS[0]), line_of(rows, "003 ", WEEKS[1])]
+    assert (note.rule, note.severity, note.line, note.column, note.value) == (
+        "id-whitespace-stripped", Severity.INFO, stripped_lines[0], "district_id", "2"
+    )
+    assert note.message.endswith(f"on lines {stripped_lines[0]}, {stripped_lines[1]}")
     w0 = table.frame[table.frame["week"] == EpiWeek(2026, 44, MMWR)]
     assert "1" in set(w0["district_id"])  # never padded to '001' silently
     assert set(table.frame["district_id"]) == set(IDS) | {"1"}
@@ -216,8 +222,10 @@ def test_xlsx_text_ids_read_like_csv(tmp_path: Path, clean: Path) -> None:
     pd.testing.assert_frame_equal(comparable(a), comparable(b))
 
 
-def test_xlsx_numeric_ids_are_errors_per_cell(tmp_path: Path) -> None:
+def test_xlsx_whole_number_ids_are_read_as_digits_and_their_lines_kept(tmp_path: Path) -> None:
     import openpyxl
+
+    from sitrep.ingest.read import NUMERIC_ID_LINES_ATTR
 
     book = openpyxl.Workbook()
     sheet = book.active
@@ -229,13 +237,43 @@ def test_xlsx_numeric_ids_are_errors_per_cell(tmp_path: Path) -> None:
     path = tmp_path / "t.xlsx"
     book.save(path)
     table, report = read(path)
+    assert report.errors == ()
+    # the digits are kept as they are (never padded silently); the boundary check judges them
+    assert {"1", "2"} <= set(table.frame["district_id"])
+    assert table.frame.attrs[NUMERIC_ID_LINES_ATTR] == (2, 9)
+
+
+def test_xlsx_ids_that_are_not_whole_numbers_are_errors_per_cell(tmp_path: Path) -> None:
+    import openpyxl
+
+    book = openpyxl.Workbook()
+    sheet = book.active
+    sheet.append(HEADER)
+    rows = clean_rows()
+    odd = {0: 4101.5, 7: 1.0e20}  # a fraction, and a float too large to hold every digit
+    for k, r in enumerate(rows):
+        sheet.append([odd.get(k, r[0]), r[1], r[2], int(r[3]), int(r[4]), int(r[5])])
+    path = tmp_path / "t.xlsx"
+    book.save(path)
+    table, report = read(path)
     hits = only(report, "id-numeric")
     assert [(f.line, f.column, f.value, f.severity) for f in hits] == [
-        (2, "district_id", "1", Severity.ERROR),
-        (9, "district_id", "2", Severity.ERROR),
+        (2, "district_id", "4101.5", Severity.ERROR),
+        (9, "district_id", "1e+20", Severity.ERROR),
     ]
-    assert "text" in hits[0].message.lower()
+    assert "whole number" in hits[0].message and "Text" in hits[0].message
     assert table is None
+
+
+def test_zero_pad_setting_pads_all_digit_ids_with_one_note(tmp_path: Path) -> None:
+    rows = changed(clean_rows(), "003", WEEKS[0], "district_id", "3")
+    table, report = read(write_csv(tmp_path / "ids.csv", rows), id_zero_pad=3)
+    (note,) = only(report, "id-zero-padded")
+    assert (note.severity, note.line, note.value) == (
+        Severity.INFO, line_of(rows, "3", WEEKS[0]), "1"
+    )
+    assert "3 -> 003" in note.message and "input.id_zero_pad = 3" in note.message
+    assert set(table.frame["district_id"]) == set(IDS)
 
 
 def test_xlsx_missing_sheet(tmp_path: Path) -> None:
@@ -266,9 +304,11 @@ def test_parquet_text_ids_read_like_csv(tmp_path: Path, clean: Path) -> None:
     pd.testing.assert_frame_equal(comparable(a), comparable(b))
 
 
-def test_parquet_integer_ids_are_an_error(tmp_path: Path) -> None:
+def test_parquet_integer_ids_are_read_as_digits_fractions_are_errors(tmp_path: Path) -> None:
     import pyarrow as pa
     import pyarrow.parquet as pq
+
+    from sitrep.ingest.read import NUMERIC_ID_LINES_ATTR
 
     rows = clean_rows()
     data = {h: [r[k] for r in rows] for k, h in enumerate(HEADER)}
@@ -277,8 +317,14 @@ def test_parquet_integer_ids_are_an_error(tmp_path: Path) -> None:
         data[h] = [int(v) for v in data[h]]
     pq.write_table(pa.table(data), tmp_path / "t.pq")
     table, report = read(tmp_path / "t.pq")
+    assert report.errors == ()
+    assert set(table.frame["district_id"]) == {str(int(i)) for i in IDS}
+    assert table.frame.attrs[NUMERIC_ID_LINES_ATTR] == tuple(range(2, len(rows) + 2))
+    data["district_id"] = [float(v) + (0.5 if k == 3 else 0.0) for k, v in enumerate(data["district_id"])]
+    pq.write_table(pa.table(data), tmp_path / "f.pq")
+    table, report = read(tmp_path / "f.pq")
     (f,) = only(report, "id-numeric")
-    assert (f.severity, f.column, f.line) == (Severity.ERROR, "district_id", None)
+    assert (f.severity, f.column, f.line, f.value) == (Severity.ERROR, "district_id", 5, "4.5")
     assert table is None
 
 

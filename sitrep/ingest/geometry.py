@@ -20,11 +20,12 @@ import numpy as np
 
 from sitrep.config import InputSettings
 from sitrep.errors import InputError
-from sitrep.ingest.read import FindingCollector
+from sitrep.ingest.read import FindingCollector, line_list, pad_id
 from sitrep.model import Districts, InputFile, Severity, ValidationReport
 
 __all__ = [
     "GAP_SHARE",
+    "NUMERIC_IDS_ATTR",
     "REPAIR_AREA_TOLERANCE",
     "REPORT_FONTS",
     "RULES",
@@ -55,7 +56,9 @@ RULES: tuple[tuple[str, str], ...] = (
     ("column-missing", "the id column is not in the layer"),
     ("column-optional-missing", "the name column is not in the layer; ids are used (warning)"),
     ("id-missing", "a feature has no district id"),
-    ("id-numeric", "the id column is stored as numbers, not text"),
+    ("id-numeric", "an id stored as a number is not a whole number (error)"),
+    ("id-whitespace-stripped", "ids had surrounding spaces, removed (info)"),
+    ("id-zero-padded", "ids were padded with zeros to input.id_zero_pad digits (info)"),
     ("id-duplicated", "two features carry the same district id"),
     ("geometry-missing", "a district's geometry is null or empty"),
     ("geometry-not-polygon", "a district's geometry is not a Polygon or MultiPolygon"),
@@ -76,6 +79,9 @@ RULES: tuple[tuple[str, str], ...] = (
     ("reader-warning", "the underlying file reader emitted a warning (info)"),
 )
 """Rule ids of this module with one-line descriptions (for the documentation)."""
+
+NUMERIC_IDS_ATTR = "numeric_ids"
+"""Key in ``Districts.frame.attrs``: ``{"column": id field, "numeric": stored as numbers}``."""
 
 REPAIR_AREA_TOLERANCE = 0.01
 """A repair is safe when the area changes by at most this share (see :func:`read_districts`)."""
@@ -500,22 +506,62 @@ def _check_features(frame: Any, settings: InputSettings, out: FindingCollector) 
         )
         return None
     raw_ids = frame[id_col]
-    if pd.api.types.is_numeric_dtype(raw_ids.dtype) and not pd.api.types.is_bool_dtype(raw_ids):
-        out.error(
-            "id-numeric",
-            f"expected district ids stored as text, got a numeric column {id_col!r}; numbers "
-            "lose leading zeros ('001' becomes 1). Store the id field as text and export again",
-            column=id_col,
-        )
-        return None
+    numeric = pd.api.types.is_numeric_dtype(raw_ids.dtype) and not pd.api.types.is_bool_dtype(
+        raw_ids
+    )
     strip = settings.strip_id_whitespace
     ids: list[str | None] = []
-    for v in raw_ids:
+    stripped: list[int] = []
+    for k, v in enumerate(raw_ids):
         if v is None or (isinstance(v, float) and np.isnan(v)):
             ids.append(None)
             continue
+        if numeric:
+            number = float(v)
+            if not (number.is_integer() and abs(number) < 2**53):
+                out.error(
+                    "id-numeric",
+                    f"expected a district id in {id_col!r}, got the number {v!r} at feature "
+                    f"{k + 1}, which is not a whole number; store the id field as text and "
+                    "export again",
+                    column=id_col,
+                    value=f"feature {k + 1}",
+                )
+                ids.append(None)
+                continue
+            ids.append(str(int(number)))
+            continue
         text = unicodedata.normalize("NFC", str(v))
+        if strip and text.strip() != text and text.strip():
+            stripped.append(k + 1)
         ids.append(text.strip() if strip else text)
+    if out.has_errors:
+        return None
+    if stripped:
+        out.add(
+            Severity.INFO,
+            "id-whitespace-stripped",
+            f"{len(stripped)} district id{'s' if len(stripped) != 1 else ''} in {id_col!r} had "
+            "spaces around them, removed before matching (input.strip_id_whitespace), at "
+            f"feature{'s' if len(stripped) != 1 else ''} {line_list(stripped)}",
+            column=id_col,
+            value=str(len(stripped)),
+        )
+    if settings.id_zero_pad:
+        width = settings.id_zero_pad
+        padded = [None if i is None else pad_id(i, width) for i in ids]
+        changed = [k for k, (a, b) in enumerate(zip(ids, padded, strict=True)) if a != b]
+        if changed:
+            out.add(
+                Severity.INFO,
+                "id-zero-padded",
+                f"{len(changed)} district id{'s' if len(changed) != 1 else ''} in {id_col!r} "
+                f"were padded with leading zeros to {width} digits (input.id_zero_pad = "
+                f"{width}; e.g. {ids[changed[0]]} -> {padded[changed[0]]})",
+                column=id_col,
+                value=str(len(changed)),
+            )
+            ids = padded
     if name_col and name_col in frame.columns:
         names = [
             ""
@@ -613,7 +659,9 @@ def _check_features(frame: Any, settings: InputSettings, out: FindingCollector) 
         geometry=gpd.GeoSeries(geoms, crs=frame.crs),
     )
     order = np.argsort(np.asarray(ids, dtype=str), kind="stable")
-    return result.iloc[order].reset_index(drop=True)
+    result = result.iloc[order].reset_index(drop=True)
+    result.attrs[NUMERIC_IDS_ATTR] = {"column": id_col, "numeric": bool(numeric)}
+    return result
 
 
 def _safe_repair(geom: Any) -> Any:

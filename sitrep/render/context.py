@@ -16,7 +16,7 @@ from typing import Any
 from sitrep.analysis.seasonal_context import SeasonalContext
 from sitrep.analysis.week import WeekAnalysis
 from sitrep.config import Config
-from sitrep.model import InputFile, Severity, ValidationReport
+from sitrep.model import InputFile, ValidationReport
 from sitrep.render import narrative as nv
 from sitrep.render.report_figures import FigureItem, ReportFigures
 
@@ -252,14 +252,13 @@ def build_context(
     )[: config.report.top_districts_in_pdf]
     quality = tuple(
         QualityItem(
-            severity=f.severity.value,
-            rule=f.rule,
-            location=f.location(),
-            district=names.get(f.district_id or "", f.district_id or ""),
-            message=f.message,
+            severity=g.severity.value,
+            rule=g.rule,
+            location=g.location(),
+            district=_group_districts(g.districts(), names),
+            message=g.message(),
         )
-        for f in validation.findings
-        if f.severity is Severity.WARNING
+        for g in ValidationReport(validation.warnings).grouped()
     )
     table_file = next((f for f in inputs if f.role == "table"), None)
     data_as_of = (
@@ -359,6 +358,13 @@ def _global_text(analysis: WeekAnalysis) -> str:
         f"I = {g.i:.3f} (expected {g.expectation:.3f} under no spatial autocorrelation), "
         f"permutation p = {g.p_sim:.3f}, over {g.n} districts with data."
     )
+
+
+def _group_districts(ids: tuple[str, ...], names: dict[str, str]) -> str:
+    """District column of a grouped finding: the name, or how many districts."""
+    if len(ids) == 1:
+        return names.get(ids[0], ids[0])
+    return f"{len(ids)} districts" if ids else ""
 
 
 def _quality_highlights(validation: ValidationReport) -> list[str]:

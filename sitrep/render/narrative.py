@@ -17,6 +17,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Sequence
+from typing import TypeGuard
 
 __all__ = [
     "NOT_AVAILABLE",
@@ -40,7 +41,7 @@ __all__ = [
 NOT_AVAILABLE = "not available"
 
 
-def _finite(x: float | None) -> bool:
+def _finite(x: float | None) -> TypeGuard[float]:
     return x is not None and isinstance(x, (int, float)) and math.isfinite(x)
 
 
@@ -178,7 +179,7 @@ def change_sentence(
                 " reflect missing reports rather than less illness."
             )
         return text
-    if _finite(p_value) and p_value < alpha and _finite(diff_pp) and abs(diff_pp) < min_change_pp:  # type: ignore[operator,arg-type]
+    if _finite(p_value) and p_value < alpha and _finite(diff_pp) and abs(diff_pp) < min_change_pp:
         return (
             f"This is similar to {before}{revised}: the change of {fmt_pp(diff_pp)} is smaller "
             f"than the {min_change_pp:g} percentage points this report treats as a meaningful "
@@ -201,13 +202,13 @@ def threshold_sentence(
     """Level against the seasonal baseline and the epidemic / intensity thresholds."""
     parts = []
     if _finite(epidemic_threshold):
-        side = "at or above" if pct >= epidemic_threshold else "below"  # type: ignore[operator]
+        side = "at or above" if pct >= epidemic_threshold else "below"
         text = f"This is {side} the epidemic threshold of {fmt_pct(epidemic_threshold)}"
         if intensity and side != "below":
             text += f" (intensity: {intensity})"
         parts.append(text)
     if _finite(baseline):
-        side = "above" if pct >= baseline else "below"  # type: ignore[operator]
+        side = "above" if pct >= baseline else "below"
         parts.append(f"{side} the seasonal baseline of {fmt_pct(baseline)}")
     if not parts:
         return unavailable_reason or "Seasonal thresholds are not available."
