@@ -118,6 +118,23 @@ def _parser() -> argparse.ArgumentParser:
                    help="the day the future-week rule compares with (default: today)")
     p.add_argument("--json", action="store_true", help="print the findings as JSON")
 
+    p = verb("init", "propose a configuration from a table and a boundary file, then check it")
+    p.epilog = (
+        "Reads the table's header and a sample of rows and the boundary layer's fields, proposes\n"
+        "the column mapping, the week system and the id field, writes a commented configuration\n"
+        "(every inferred value is marked GUESS) and runs `sitrep check` on it.\n"
+        "exit codes: 0 written and no error-level finding · 1 written but check found an error,\n"
+        "or an input could not be read · 2 usage error (e.g. --out exists without --force)"
+    )
+    p.add_argument("--table", type=Path, required=True, help="a weekly table (CSV, XLSX or Parquet)")
+    p.add_argument("--boundaries", type=Path, required=True,
+                   help="the district boundaries (GeoPackage, GeoJSON or Shapefile)")
+    p.add_argument("--out", type=Path, default=Path("sitrep.toml"),
+                   help="where to write the configuration (default ./sitrep.toml)")
+    p.add_argument("--force", action="store_true", help="replace --out when it exists")
+    p.add_argument("--today", type=_date_arg, default=None, metavar="YYYY-MM-DD",
+                   help="the day the check's future-week rule compares with (default: today)")
+
     p = verb("verify", "recompute every checksum of an archived bundle")
     p.epilog = (
         "exit codes: 0 every checksum matches · 1 a file is missing, changed or extra ·\n"
@@ -301,6 +318,22 @@ def _cmd_check(args: argparse.Namespace) -> int:
     return EXIT_BLOCKED if report.blocked else EXIT_OK
 
 
+def _cmd_init(args: argparse.Namespace) -> int:
+    from sitrep import pipeline
+    from sitrep.starter import propose, write_config
+
+    proposal = propose(args.table, args.boundaries)
+    out = write_config(proposal, args.out, force=args.force)
+    guesses = out.read_text(encoding="utf-8").count("# GUESS")
+    print(f"wrote {out} ({guesses} value(s) marked GUESS: check them)")
+    for note in proposal.notes:
+        print(f"note: {note}")
+    print(f"sitrep check --config {out}:")
+    report = pipeline.check(_load(out), today=args.today or dt.date.today())
+    _print_findings(report)
+    return EXIT_BLOCKED if report.blocked else EXIT_OK
+
+
 def _cmd_verify(args: argparse.Namespace) -> int:
     from sitrep.deliver.archive import verify_bundle
 
@@ -374,6 +407,7 @@ COMMANDS = {
     "demo": _cmd_demo,
     "build": _cmd_build,
     "check": _cmd_check,
+    "init": _cmd_init,
     "verify": _cmd_verify,
     "send": _cmd_send,
     "run": _cmd_run,

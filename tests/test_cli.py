@@ -76,7 +76,7 @@ def bundle(demo_build: Any, tmp_path: Path) -> Path:
 # --------------------------------------------------------------------------- help and exit codes
 
 
-@pytest.mark.parametrize("verb", ["demo", "build", "check", "verify", "send", "run"])
+@pytest.mark.parametrize("verb", ["demo", "init", "build", "check", "verify", "send", "run"])
 def test_every_verb_has_help(verb: str, capsys: pytest.CaptureFixture[str]) -> None:
     code, out, _ = run(capsys, verb, "--help")
     assert code == 0

@@ -61,7 +61,8 @@ TOP_LEVEL: dict[str, set[str]] = {
     "pipeline": {*ORDER, *SHARED, "cache", "versions"},
     "batch": {"pipeline", "deliver", *SHARED},
     "delivery_jobs": {*ORDER, *SHARED, "pipeline"},
-    "cli": {*ORDER, *SHARED, "pipeline", "batch", "delivery_jobs", "cache", "versions"},
+    "starter": {"ingest", *SHARED},
+    "cli": {*ORDER, *SHARED, "pipeline", "batch", "delivery_jobs", "cache", "versions", "starter"},
 }
 
 
