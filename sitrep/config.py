@@ -131,7 +131,7 @@ class AnalysisSettings:
     knn_k: int = 5
     link_islands_k: int = 0
     """When > 0, link each island to its k nearest districts (and say so)."""
-    permutations: int = 999
+    permutations: int = 9999
     seed: int = 12345
     alpha: float = 0.05
     correction: Literal["fdr_bh", "none"] = "fdr_bh"
@@ -148,6 +148,8 @@ class SeasonalSettings:
     mem_delta: float = 2.8
     mem_form: Literal["point", "ci"] = "point"
     mem_max_seasons: int = 10
+    mem_window_end_week: int = 20
+    """Last calendar week of each past season used for the epidemic thresholds (0: the whole season)."""
     onset_weeks: int = 3
     aberration_sd_floor_pp: float = 0.2
 
@@ -163,7 +165,12 @@ class ReportSettings:
     template_dir: Path | None = None
     """Use templates from this folder instead of the packaged ones."""
     version: str = "1"
+    """Shown only for a report that is not archived; an archived report shows its archive version."""
     top_districts_in_pdf: int = 15
+    case_definition: str = ""
+    """The ILI case definition the reporting sites use, quoted in the cautions."""
+    draft_names_groups: bool = False
+    """Name the districts of a high-value group in the communications draft."""
 
 
 @dataclasses.dataclass(frozen=True)
@@ -360,6 +367,10 @@ def _check_ranges(c: Config) -> None:
          c.weeks.season_start_week),
         (c.input.max_input_mb > 0, "input.max_input_mb must be positive", c.input.max_input_mb),
         (c.seasonal.onset_weeks >= 1, "seasonal.onset_weeks must be at least 1", c.seasonal.onset_weeks),
+        (0 <= c.seasonal.mem_window_end_week <= 53
+         and c.seasonal.mem_window_end_week != c.weeks.season_start_week,
+         "seasonal.mem_window_end_week must be 0 (whole season) or a week 1..53 other than "
+         "weeks.season_start_week", c.seasonal.mem_window_end_week),
         (1 <= c.email.port <= 65535, "email.port must be 1..65535", c.email.port),
         (c.email.retries >= 0, "email.retries must not be negative", c.email.retries),
         (c.report.top_districts_in_pdf >= 0, "report.top_districts_in_pdf must not be negative",

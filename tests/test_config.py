@@ -16,7 +16,7 @@ def test_demo_config_loads_and_resolves_paths() -> None:
     config = load_config(DEMO)
     assert config.report.jurisdiction == "Province of Quillmarsh"
     assert config.input.table == DEMO.parent / "extract_2026-W47.csv"
-    assert config.analysis.permutations == 999
+    assert config.analysis.permutations == 9999
     assert config.source == DEMO.resolve()
 
 

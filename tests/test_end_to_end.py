@@ -173,7 +173,7 @@ def test_bundle_verifies_then_fails_after_one_byte(demo_build, tmp_path: Path) -
 def test_manifest_records_inputs_seed_and_versions(demo_build) -> None:  # type: ignore[no-untyped-def]
     _, result, _ = demo_build
     manifest = json.loads(_read(result, "manifest.json"))
-    assert manifest["seed"] == 12345 and manifest["permutations"] == 999
+    assert manifest["seed"] == 12345 and manifest["permutations"] == 9999
     assert manifest["week_system"] == "mmwr"
     table = next(i for i in manifest["inputs"] if i["role"] == "table")
     assert table["sha256"] == hashlib.sha256((DEMO / "extract_2026-W47.csv").read_bytes()).hexdigest()

@@ -6,7 +6,8 @@ import math
 
 import pytest
 
-from sitrep.render import narrative as nv
+from sitrep.render.wording import formats as fm
+from sitrep.render.wording import sentences as nv
 
 BASE = dict(pct_now=2.34, pct_before=1.81, diff_pp=0.53, low_pp=0.31, high_pp=0.75, prior_week_number=46)
 
