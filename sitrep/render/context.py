@@ -269,6 +269,8 @@ def build_context(
             )
         groups.append((group.label.value, [names[i] for i in group.ids], movement))
         named_ids.update(group.ids)
+        if match is not None and transitions.compared:
+            named_ids.update(match.removed)
         if group.label.value == "high-high":
             high_groups.append([names[i] for i in group.ids])
     correction = nv.correction_phrase(correction=a.correction, fdr_q=a.fdr_q, alpha=a.alpha)
