@@ -44,7 +44,7 @@ def environment(template_dir: Path | None = None, *, escape_html: bool = True) -
         folders.insert(0, str(template_dir))
     return jinja2.Environment(
         loader=jinja2.FileSystemLoader(folders),
-        autoescape=escape_html,
+        autoescape=escape_html,  # noqa: S701 - off only for Markdown and plain text, escaped by their callers
         undefined=jinja2.StrictUndefined,
         trim_blocks=True,
         lstrip_blocks=True,
