@@ -251,7 +251,7 @@ def build_context(
             rule=g.rule,
             location=g.location(),
             district=_group_districts(g.districts(), names),
-            message=g.message(),
+            message=g.message(span=False, full_list="validation.json"),
         )
         for g in ValidationReport(validation.warnings).grouped()
     )
