@@ -71,6 +71,9 @@ class InputSettings:
     """Declare the CRS when the file carries none (never guessed)."""
     boundaries_extent: tuple[float, float, float, float] | None = None
     """Expected extent ``[west, south, east, north]`` in WGS 84 degrees; the layer must lie inside."""
+    map_crs: str | None = None
+    """Projected CRS for maps and distances (e.g. ``EPSG:3035``); default: the boundaries' own
+    CRS when it is projected, else one estimated from the layer (see ``sitrep.ingest.geometry``)."""
     inbox: Path | None = None
     """Folder searched by ``sitrep run`` for the newest extract."""
     inbox_pattern: str = "*.csv"

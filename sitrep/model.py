@@ -278,14 +278,25 @@ class CountTable:
 
 @dataclasses.dataclass(frozen=True, eq=False)
 class Districts:
-    """District boundaries with checked ids and a projected or declared CRS.
+    """District boundaries with checked ids and a known CRS.
 
     ``frame`` is a GeoDataFrame with columns ``district_id`` (str),
-    ``district_name`` (str) and ``geometry``, sorted by ``district_id``.
+    ``district_name`` (str) and ``geometry``, sorted by ``district_id``, in
+    the CRS of the file (contiguity is found on it). ``projected`` is the same
+    frame in the projected CRS used for maps and distances (``frame`` itself
+    when that is the file's CRS); ``projection`` says which CRS that is and
+    how it was chosen (one sentence for the methods note and the manifest).
     """
 
     frame: gpd.GeoDataFrame
     source: InputFile
+    projected: gpd.GeoDataFrame | None = None
+    projection: str = ""
+
+    @property
+    def map_frame(self) -> gpd.GeoDataFrame:
+        """The districts in the projected CRS of the maps and distances."""
+        return self.frame if self.projected is None else self.projected
 
     @property
     def ids(self) -> tuple[str, ...]:

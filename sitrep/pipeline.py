@@ -236,7 +236,11 @@ def _graph(districts: Districts, config: Config, log: Log = _quiet) -> DistrictG
         config.input,
         a,
         lambda: build_graph(
-            districts.frame, kind=a.weights, k=a.knn_k, link_islands_k=a.link_islands_k
+            districts.frame,
+            kind=a.weights,
+            k=a.knn_k,
+            link_islands_k=a.link_islands_k,
+            metric=districts.map_frame,
         ),
     )
     if outcome.status != "off":
@@ -401,6 +405,7 @@ def _build(
                 versions=versions,
                 inputs=inputs.files,
                 reissue=reissue,
+                projection=inputs.districts.projection,
             )
             html = render_html(context, config.report.template_dir)
             pdf_html = render_html(context, config.report.template_dir, for_pdf=True)
@@ -482,6 +487,7 @@ def _manifest(
         "permutations": config.analysis.permutations,
         "source_date_epoch": _source_date_epoch(week.end),
         "permutation_engine": permutation_engine(),
+        "map_projection": _map_projection(inputs.districts),
         "parameters": _parameters(config),
         "versions": versions,
         "inputs": [
@@ -498,6 +504,20 @@ def _manifest(
             "warnings": len(inputs.validation.warnings),
         },
         "reissue_reason": reissue_reason,
+    }
+
+
+def _map_projection(districts: Districts | None) -> dict[str, Any]:
+    """The CRS of the maps and distances, for the manifest."""
+    if districts is None:
+        return {}
+    crs = districts.map_frame.crs
+    return {
+        "boundaries_crs": districts.frame.crs.to_string() if districts.frame.crs else None,
+        "map_crs": crs.to_string() if crs else None,
+        "map_crs_wkt": crs.to_wkt() if crs else None,
+        "reprojected": districts.projected is not None,
+        "note": districts.projection,
     }
 
 

@@ -404,3 +404,20 @@ def test_send_of_a_folder_that_is_no_bundle_exits_2(
     config = write_config(tmp_path / "cfg")
     code, _, err = run(capsys, "send", str(tmp_path), "--config", str(config))
     assert code == cli.EXIT_USAGE and "is not a sitrep bundle" in err
+
+
+def test_build_today_sets_the_day_of_the_future_week_rule(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    # the demo week 2026-W47 runs 22 to 28 November 2026 (MMWR); a build dated 21 November
+    # sees it as a future week and is blocked, one dated the Monday after builds it
+    cfg = write_config(tmp_path, output__pdf=False)
+    code, out, err = run(capsys, "build", "--config", str(cfg), "--no-archive", "--today", "2026-11-21")
+    assert code == cli.EXIT_BLOCKED
+    assert "week-future" in err and "2026-W47" in err
+    assert not (tmp_path / "out" / "report.html").exists()
+    code, out, err = run(capsys, "build", "--config", str(cfg), "--no-archive", "--today", TODAY)
+    assert code == cli.EXIT_OK, err
+    assert (tmp_path / "out" / "report.html").is_file()
+    code, out, err = run(capsys, "build", "--config", str(cfg), "--today", "30/11/2026")
+    assert code == cli.EXIT_USAGE and "expected a date like 2026-11-30" in err

@@ -158,8 +158,13 @@ def build_context(
     versions: Mapping[str, str],
     inputs: Sequence[InputFile],
     reissue: tuple[int, str] | None = None,
+    projection: str = "",
 ) -> ReportContext:
-    """Assemble the report context from the week's results (pure)."""
+    """Assemble the report context from the week's results (pure).
+
+    ``projection`` is the sentence saying in which CRS the maps are drawn and
+    distances measured (``Districts.projection``); it becomes a methods entry.
+    """
     week = analysis.week
     prior = analysis.prior_week
     j = analysis.jurisdiction
@@ -269,7 +274,7 @@ def build_context(
         ("Global Moran's I", _global_text(analysis)),
         ("Seasonal thresholds", seasonal.method_note),
         ("Week numbering", f"{week.system.label}; season {seasonal.season_label} starts in week {config.weeks.season_start_week}. Some years have a week 53."),
-    )
+    ) + ((("Maps and distances", projection),) if projection else ())
     plain = (
         ("This week", level + " " + change),
         ("Compared with the season", thresholds),
