@@ -19,10 +19,12 @@ demo: $(STAMP)
 
 test: $(STAMP)
 	$(BIN)/python -m ruff check sitrep tests
+	$(BIN)/python -m mypy
 	$(BIN)/python -m pytest -q
 
 lint: $(STAMP)
 	$(BIN)/python -m ruff check sitrep tests benchmarks
+	$(BIN)/python -m mypy
 	$(BIN)/python -m ruff format --check sitrep tests
 
 bench: $(STAMP)

@@ -119,6 +119,7 @@ def graph_key(
         "boundaries_layer": input_settings.boundaries_layer,
         "boundaries_id_column": input_settings.boundaries_id_column,
         "boundaries_crs": input_settings.boundaries_crs,
+        "map_crs": input_settings.map_crs,
         "strip_id_whitespace": input_settings.strip_id_whitespace,
         "weights": analysis.weights,
         "knn_k": analysis.knn_k if analysis.weights == "knn" else None,

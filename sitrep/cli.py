@@ -49,14 +49,16 @@ EPILOG = """exit codes: 0 done · 1 blocked by validation or unreadable input ·
 
 
 def _demo_inputs() -> Path:
-    """The demo scenario folder: ./demo_inputs, else the one beside the package source."""
-    here = Path.cwd() / "demo_inputs"
-    if (here / "sitrep.toml").is_file():
-        return here
-    beside = Path(__file__).resolve().parent.parent / "demo_inputs"
-    if (beside / "sitrep.toml").is_file():
-        return beside
-    raise ConfigError("demo_inputs/sitrep.toml not found; run from the sitrep source folder or pass --inputs")
+    """The demo scenario folder shipped inside the package (``sitrep.demo_inputs``)."""
+    import importlib.resources
+
+    folder = Path(str(importlib.resources.files("sitrep.demo_inputs")))
+    if not (folder / "sitrep.toml").is_file():
+        raise ConfigError(
+            f"the demo inputs are missing from the installed package ({folder}); reinstall "
+            "sitrep, or pass --inputs FOLDER"
+        )
+    return folder
 
 
 def _date_arg(text: str) -> dt.date:
@@ -83,7 +85,8 @@ def _parser() -> argparse.ArgumentParser:
 
     p = verb("demo", "build the invented demo week into an output folder")
     p.add_argument("--out", type=Path, default=Path("sitrep-demo"), help="output folder (default ./sitrep-demo)")
-    p.add_argument("--inputs", type=Path, default=None, help="demo inputs folder (default ./demo_inputs)")
+    p.add_argument("--inputs", type=Path, default=None,
+                   help="demo inputs folder (default: the copy shipped inside the package)")
 
     p = verb("build", "validate, analyse, render and archive this week's report")
     p.add_argument("--config", type=Path, action="append", default=None,
@@ -99,6 +102,9 @@ def _parser() -> argparse.ArgumentParser:
     p.add_argument("--reissue", metavar="REASON", default=None,
                    help="write a new version of an already archived week, giving the reason")
     p.add_argument("--no-archive", action="store_true", help="write the output folder only")
+    p.add_argument("--today", type=_date_arg, default=None, metavar="YYYY-MM-DD",
+                   help="the day the future-week rule compares with (default: today); for "
+                        "rebuilding or testing past weeks")
 
     p = verb("check", "validate the inputs only; print the findings")
     p.epilog = (
@@ -156,29 +162,40 @@ def _load(path: Path) -> Config:
 
 
 def _print_findings(report: ValidationReport, stream: object = None) -> None:
-    """Print findings as a table: severity, rule, file:line, column, district, message."""
+    """Print findings as a table: severity, rule, file:line, column, district, message.
+
+    Findings of one rule on one file and column are printed as one line with
+    their count and first locations; ``check --json`` and validation.json list
+    every one.
+    """
     out = stream or sys.stdout
     if not report.findings:
         print("no findings: the inputs passed every check", file=out)  # type: ignore[arg-type]
         return
     header = ("severity", "rule", "file:line", "column", "district", "message")
-    rows = [
-        (
-            f.severity.value,
-            f.rule,
-            (f.file or "-") + (f":{f.line}" if f.line is not None else ""),
-            f.column or "-",
-            f.district_id or "-",
-            f.message,
+    groups = report.grouped()
+    rows = []
+    for g in groups:
+        f = g.first
+        districts = g.districts()
+        rows.append(
+            (
+                f.severity.value,
+                f.rule,
+                (f.file or "-") + (f":{f.line}" if f.line is not None else ""),
+                f.column or "-",
+                districts[0] if len(districts) == 1 else (f"{len(districts)} districts" if districts else "-"),
+                g.message(),
+            )
         )
-        for f in report.findings
-    ]
     widths = [max(len(row[i]) for row in (header, *rows)) for i in range(5)]
     for row in (header, *rows):
         cells = "  ".join(cell.ljust(width) for cell, width in zip(row[:5], widths, strict=True))
         print(f"{cells}  {row[5]}", file=out)  # type: ignore[arg-type]
     notes = len(report.findings) - len(report.errors) - len(report.warnings)
     summary = f"{len(report.errors)} error(s), {len(report.warnings)} warning(s), {notes} note(s)"
+    if len(groups) < len(report.findings):
+        summary += f" in {len(groups)} group(s)"
     if report.blocked:
         summary += ": blocked, a build would stop here and nothing would be archived or sent"
     print(summary, file=out)  # type: ignore[arg-type]
@@ -186,7 +203,6 @@ def _print_findings(report: ValidationReport, stream: object = None) -> None:
 
 def _cmd_demo(args: argparse.Namespace) -> int:
     import dataclasses
-
 
     inputs = args.inputs or _demo_inputs()
     config = _load(inputs / "sitrep.toml")
@@ -197,12 +213,20 @@ def _cmd_demo(args: argparse.Namespace) -> int:
     return _build(config, out, reissue=None, archive=True, demo=True)
 
 
-def _build(config: Config, out: Path | None, *, reissue: str | None, archive: bool, demo: bool = False) -> int:
+def _build(
+    config: Config,
+    out: Path | None,
+    *,
+    reissue: str | None,
+    archive: bool,
+    demo: bool = False,
+    today: dt.date | None = None,
+) -> int:
     from sitrep import pipeline
 
     try:
         result = pipeline.build(config, out_dir=out, archive=archive, reissue_reason=reissue,
-                                log=lambda m: print(m))
+                                today=today, log=lambda m: print(m))
     except ValidationFailed as exc:
         if exc.report is not None:
             _print_findings(exc.report, sys.stderr)
@@ -212,7 +236,8 @@ def _build(config: Config, out: Path | None, *, reissue: str | None, archive: bo
 
         if demo and isinstance(exc, ArchiveExists):
             print(f"note: {exc}")
-            result = pipeline.build(config, out_dir=out, archive=False, log=lambda m: print(m))
+            result = pipeline.build(config, out_dir=out, archive=False, today=today,
+                                    log=lambda m: print(m))
         else:
             raise
     for path in result.outputs:
@@ -232,7 +257,8 @@ def _cmd_build(args: argparse.Namespace) -> int:
         raise ConfigError("build needs --config FILE (repeatable) or --configs-dir FOLDER")
     batch = len(configs) > 1 or args.configs_dir is not None or args.scheduler is not None
     if not batch and args.workers is None:
-        return _build(_load(configs[0]), args.out, reissue=args.reissue, archive=not args.no_archive)
+        return _build(_load(configs[0]), args.out, reissue=args.reissue,
+                      archive=not args.no_archive, today=args.today)
     from sitrep.batch import batch_exit_code, run_batch, summary_table
 
     results = run_batch(
@@ -242,6 +268,7 @@ def _cmd_build(args: argparse.Namespace) -> int:
         out_root=args.out,
         archive=not args.no_archive,
         reissue_reason=args.reissue,
+        today=args.today,
     )
     print(summary_table(results))
     return batch_exit_code(results)

@@ -71,6 +71,9 @@ class InputSettings:
     """Declare the CRS when the file carries none (never guessed)."""
     boundaries_extent: tuple[float, float, float, float] | None = None
     """Expected extent ``[west, south, east, north]`` in WGS 84 degrees; the layer must lie inside."""
+    map_crs: str | None = None
+    """Projected CRS for maps and distances (e.g. ``EPSG:3035``); default: the boundaries' own
+    CRS when it is projected, else one estimated from the layer (see ``sitrep.ingest.geometry``)."""
     inbox: Path | None = None
     """Folder searched by ``sitrep run`` for the newest extract."""
     inbox_pattern: str = "*.csv"
@@ -79,7 +82,16 @@ class InputSettings:
     decimal: Literal[".", ","] = "."
     sheet: str | None = None
     """Worksheet name for XLSX tables (first sheet when unset)."""
+    date_format: str | None = None
+    """How week start/end dates are written when not ISO ``YYYY-MM-DD``, as a
+    :func:`datetime.datetime.strptime` pattern such as ``"%m/%d/%Y"`` (declared, never guessed)."""
     strip_id_whitespace: bool = True
+    id_zero_pad: int | None = None
+    """Pad all-digit district ids shorter than this many digits with leading zeros (table and
+    boundaries), e.g. for ids a spreadsheet stored as numbers; unset: ids are used as read."""
+    weekly_file: bool | None = None
+    """The table holds one week only (true) or the season to date (false); unset: one week when
+    last week's file (prior_table) holds one week, else season to date."""
     max_input_mb: float = 200.0
     columns: ColumnMap = dataclasses.field(default_factory=ColumnMap)
 
@@ -105,9 +117,11 @@ class ValidationSettings:
     completeness_drop_share: float = 0.30
     """Warn when total visits or reporting sites fall by more than this share."""
     spike_robust_z: float = 5.0
-    """Robust z (|x - median| / MAD over the last 8 weeks) above which a value is flagged."""
+    """Robust z above which a value is flagged: against the district's previous weeks scaled by
+    the other districts' movement, and against the other districts' changes (both must exceed)."""
     spike_min_weeks: int = 5
-    """Fewest of the previous 8 weeks with data for the spike rule to run."""
+    """Fewest of the previous 8 weeks for their median to be the spike rule's reference; with
+    fewer, the latest previous week (from this table or last week's) is the reference."""
     spike_mad_floor_pp: float = 0.2
     """Smallest spread used by the spike rule, in percentage points (common practice)."""
     rate_tolerance_pp: float = 0.05
@@ -257,10 +271,15 @@ def load_config(path: str | Path) -> Config:
     return dataclasses.replace(config, source=path.resolve())
 
 
+_WEEK_SOURCES = (("week",), ("year", "week_number"), ("week_start",), ("week_end",))
+"""The ways of giving the week in ``input.columns``; a configuration sets at most one."""
+
+
 def config_from_dict(raw: dict[str, Any], base_dir: Path | None = None) -> Config:
     """Build a :class:`Config` from a parsed TOML mapping (see :func:`load_config`)."""
     raw = dict(raw)
     raw.pop("source", None)
+    _check_week_sources(raw)
     config = _build(Config, raw, "", base_dir or Path.cwd())
     _check_ranges(config)
     return config
@@ -344,6 +363,23 @@ def _coerce(hint: Any, value: Any, key: str, base_dir: Path) -> Any:
     raise ConfigError(f"{key}: unsupported setting type {hint!r}")  # pragma: no cover
 
 
+def _check_week_sources(raw: dict[str, Any]) -> None:
+    """Refuse two week sources set in the file (e.g. ``week`` and ``week_end``), naming both."""
+    section = raw.get("input")
+    columns = section.get("columns") if isinstance(section, dict) else None
+    if not isinstance(columns, dict):
+        return
+    given = [
+        keys for keys in _WEEK_SOURCES if any(columns.get(k) not in (None, "") for k in keys)
+    ]
+    if len(given) > 1:
+        named = [" + ".join(f"input.columns.{k}" for k in keys) for keys in given]
+        raise ConfigError(
+            f"{' and '.join(named)} both give the week; keep exactly one of them (a week label, "
+            "year + week_number, week_start or week_end) and remove the other"
+        )
+
+
 def _reject_control(key: str, value: str) -> None:
     """Refuse CR, LF and NUL in any string: they could inject e-mail headers or paths."""
     bad = [c for c in ("\r", "\n", "\x00") if c in value]
@@ -379,6 +415,21 @@ def _check_ranges(c: Config) -> None:
     for ok, message, value in checks:
         if not ok:
             raise ConfigError(f"{message}, got {value!r}")
+    if c.input.date_format is not None:
+        import datetime as dt
+
+        try:
+            probe = dt.date(2026, 11, 28).strftime(c.input.date_format)
+            ok = dt.datetime.strptime(probe, c.input.date_format).date() == dt.date(2026, 11, 28)
+        except ValueError:
+            ok = False
+        if not ok:
+            raise ConfigError(
+                f"input.date_format = {c.input.date_format!r} does not give a full date; use "
+                "strptime codes with day, month and year, e.g. '%m/%d/%Y' or '%d.%m.%Y'"
+            )
+    if c.input.id_zero_pad is not None and not 1 <= c.input.id_zero_pad <= 20:
+        raise ConfigError(f"input.id_zero_pad must be 1..20 digits, got {c.input.id_zero_pad!r}")
     if len(c.input.delimiter) != 1:
         raise ConfigError(f"input.delimiter must be one character, got {c.input.delimiter!r}")
     if c.input.delimiter == c.input.decimal:

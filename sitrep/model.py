@@ -25,6 +25,7 @@ __all__ = [
     "CountTable",
     "Districts",
     "Finding",
+    "FindingGroup",
     "InputFile",
     "Severity",
     "ValidationReport",
@@ -132,6 +133,111 @@ class ValidationReport:
         """Both reports' findings, this one's first."""
         return ValidationReport(self.findings + other.findings)
 
+    def grouped(self) -> tuple[FindingGroup, ...]:
+        """The findings gathered per severity, rule, file and column, in first-seen order.
+
+        A systematic problem (the same rule firing on every row of a column)
+        becomes one group; the per-cell findings stay in :attr:`findings`.
+        """
+        groups: dict[tuple[Severity, str, str, str], list[Finding]] = {}
+        for f in self.findings:
+            groups.setdefault((f.severity, f.rule, f.file, f.column or ""), []).append(f)
+        return tuple(FindingGroup(tuple(members)) for members in groups.values())
+
+
+SHOWN_PER_GROUP = 5
+"""How many locations a grouped finding shows (terminal and PDF); the rest are in validation.json."""
+
+
+@dataclasses.dataclass(frozen=True)
+class FindingGroup:
+    """Findings of one rule on one file and column, shown as one line."""
+
+    members: tuple[Finding, ...]
+
+    @property
+    def first(self) -> Finding:
+        """The first finding of the group (lowest line)."""
+        return self.members[0]
+
+    @property
+    def count(self) -> int:
+        """Number of findings in the group."""
+        return len(self.members)
+
+    @property
+    def severity(self) -> Severity:
+        """Severity shared by the group."""
+        return self.first.severity
+
+    @property
+    def rule(self) -> str:
+        """Rule id shared by the group."""
+        return self.first.rule
+
+    def lines(self) -> tuple[int, ...]:
+        """Distinct lines of the group, ascending."""
+        return tuple(sorted({f.line for f in self.members if f.line is not None}))
+
+    def span(self) -> str:
+        """Where the group lies: ``lines 2-241`` when contiguous, else ``lines 2 to 900``."""
+        lines = self.lines()
+        if not lines:
+            return ""
+        if len(lines) == 1:
+            return f"line {lines[0]}"
+        joined = "-" if lines[-1] - lines[0] + 1 == len(lines) else " to "
+        return f"lines {lines[0]}{joined}{lines[-1]}"
+
+    def location(self) -> str:
+        """``file, line(s), column 'c'`` of the whole group."""
+        if self.count == 1:
+            return self.first.location()
+        f = self.first
+        parts = [f.file] if f.file else []
+        if self.span():
+            parts.append(self.span())
+        if f.column:
+            parts.append(f"column '{f.column}'")
+        return ", ".join(parts)
+
+    def districts(self) -> tuple[str, ...]:
+        """Distinct district ids of the group, in order of appearance."""
+        return tuple(dict.fromkeys(f.district_id for f in self.members if f.district_id))
+
+    def message(
+        self,
+        shown: int = SHOWN_PER_GROUP,
+        *,
+        span: bool = True,
+        full_list: str = "validation.json (and check --json)",
+    ) -> str:
+        """One sentence for the whole group: the count, the span and the first locations.
+
+        ``span=False`` leaves the line span out (when the location column shows it);
+        ``full_list`` names where every finding of the group is listed.
+        """
+        if self.count == 1:
+            return self.first.message
+        what = "cells" if self.first.column and self.lines() else "findings"
+        head = f"{self.count} {what}" + (f", {self.span()}" if span and self.span() else "")
+        first = self.members[:shown]
+        spots = "; ".join(_spot(f) for f in first)
+        tail = (
+            f"first {len(first)} shown, all {self.count} in {full_list}"
+            if self.count > len(first)
+            else "all shown"
+        )
+        return f"{head}: {self.first.message} [{spots}; {tail}]"
+
+
+def _spot(f: Finding) -> str:
+    where = f"line {f.line}" if f.line is not None else (f.district_id or "")
+    value = f.value if f.value is not None else ""
+    if where and value:
+        return f"{where}: {value}"
+    return where or value or "-"
+
 
 COUNT_COLUMNS = ("district_id", "week", "reporting_sites", "ili_visits", "total_visits")
 """Internal column names of :attr:`CountTable.frame` (plus ``district_name``, ``line``)."""
@@ -166,19 +272,31 @@ class CountTable:
     def latest_week(self) -> EpiWeek:
         """The most recent week in the table."""
         week = self.frame["week"]
-        return week.max() if hasattr(week, "cat") and week.cat.ordered else max(week)
+        latest: EpiWeek = week.max() if hasattr(week, "cat") and week.cat.ordered else max(week)
+        return latest
 
 
 @dataclasses.dataclass(frozen=True, eq=False)
 class Districts:
-    """District boundaries with checked ids and a projected or declared CRS.
+    """District boundaries with checked ids and a known CRS.
 
     ``frame`` is a GeoDataFrame with columns ``district_id`` (str),
-    ``district_name`` (str) and ``geometry``, sorted by ``district_id``.
+    ``district_name`` (str) and ``geometry``, sorted by ``district_id``, in
+    the CRS of the file (contiguity is found on it). ``projected`` is the same
+    frame in the projected CRS used for maps and distances (``frame`` itself
+    when that is the file's CRS); ``projection`` says which CRS that is and
+    how it was chosen (one sentence for the methods note and the manifest).
     """
 
     frame: gpd.GeoDataFrame
     source: InputFile
+    projected: gpd.GeoDataFrame | None = None
+    projection: str = ""
+
+    @property
+    def map_frame(self) -> gpd.GeoDataFrame:
+        """The districts in the projected CRS of the maps and distances."""
+        return self.frame if self.projected is None else self.projected
 
     @property
     def ids(self) -> tuple[str, ...]:

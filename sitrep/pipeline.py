@@ -160,8 +160,12 @@ def read_inputs(
     start = config.weeks.season_start_week
     with _timed(timings, "validate"):
         if table is not None:
+            weekly, inferred = _weekly_file(config, prior)
             report = report.merged(
-                validate_table(table, districts, config.validation, today=today, season_start_week=start)
+                validate_table(
+                    table, districts, config.validation, today=today, season_start_week=start,
+                    weekly_file=weekly, weekly_inferred=inferred, prior=prior,
+                )
             )
         if history is not None:
             report = report.merged(
@@ -173,6 +177,16 @@ def read_inputs(
         if table is not None and prior is not None:
             report = report.merged(validate_against_prior(table, prior, config.validation))
     return Inputs(table, prior, history, districts, ValidationReport(_dedupe(report.findings)))
+
+
+def _weekly_file(config: Config, prior: CountTable | None) -> tuple[bool, bool]:
+    """Whether the table is one week (``input.weekly_file``, else: last week's file held one
+    week), and whether that was inferred rather than declared."""
+    if config.input.weekly_file is not None:
+        return config.input.weekly_file, False
+    if prior is not None and len(prior.weeks) == 1:
+        return True, True
+    return False, False
 
 
 def _dedupe(findings: tuple[Any, ...]) -> tuple[Any, ...]:
@@ -222,7 +236,11 @@ def _graph(districts: Districts, config: Config, log: Log = _quiet) -> DistrictG
         config.input,
         a,
         lambda: build_graph(
-            districts.frame, kind=a.weights, k=a.knn_k, link_islands_k=a.link_islands_k
+            districts.frame,
+            kind=a.weights,
+            k=a.knn_k,
+            link_islands_k=a.link_islands_k,
+            metric=districts.map_frame,
         ),
     )
     if outcome.status != "off":
@@ -398,6 +416,7 @@ def _build(
                 version=version,
                 build_time=build_time,
                 digits=digits,
+                projection=inputs.districts.projection,
             )
             html = render_html(context, config.report.template_dir)
             pdf_html = render_html(context, config.report.template_dir, for_pdf=True)
@@ -480,6 +499,7 @@ def _manifest(
         "permutations": config.analysis.permutations,
         "source_date_epoch": _source_date_epoch(week.end),
         "permutation_engine": permutation_engine(),
+        "map_projection": _map_projection(inputs.districts),
         "parameters": _parameters(config),
         "versions": versions,
         "inputs": [
@@ -496,6 +516,20 @@ def _manifest(
             "warnings": len(inputs.validation.warnings),
         },
         "reissue_reason": reissue_reason,
+    }
+
+
+def _map_projection(districts: Districts | None) -> dict[str, Any]:
+    """The CRS of the maps and distances, for the manifest."""
+    if districts is None:
+        return {}
+    crs = districts.map_frame.crs
+    return {
+        "boundaries_crs": districts.frame.crs.to_string() if districts.frame.crs else None,
+        "map_crs": crs.to_string() if crs else None,
+        "map_crs_wkt": crs.to_wkt() if crs else None,
+        "reprojected": districts.projected is not None,
+        "note": districts.projection,
     }
 
 

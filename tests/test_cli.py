@@ -132,11 +132,15 @@ def test_check_demo_inputs_passes_with_warnings(
     assert code == 0, err
     header = out.splitlines()[0].split()
     assert header == ["severity", "rule", "file:line", "column", "district", "message"]
-    # The demo's known spike (district 039) is reported at its row in the file.
-    row = next(line for line in out.splitlines() if line.startswith("warning") and " 039 " in line)
-    assert f"extract_2026-W47.csv:{line_of(W47, '039', '2026-W47')}" in row
-    assert "value-spike" in row and "ili_visits" in row
-    assert re.search(r"^0 error\(s\), \d+ warning\(s\), 0 note\(s\)$", out, flags=re.MULTILINE)
+    # The demo's revisions are one grouped line, located at the first revised row of the file.
+    row = next(line for line in out.splitlines() if line.startswith("warning   revision-large"))
+    assert f"extract_2026-W47.csv:{line_of(W47, '002', '2026-W46')}" in row
+    assert "4 districts" in row and "4 cells" in row
+    # The demo week rises everywhere: no district is a value spike against that movement.
+    assert "value-spike" not in out
+    assert re.search(
+        r"^0 error\(s\), \d+ warning\(s\), 0 note\(s\) in \d+ group\(s\)$", out, flags=re.MULTILINE
+    )
 
     code, out, _ = run(capsys, "check", "--config", str(config), "--today", TODAY, "--json")
     doc = json.loads(out)
@@ -400,3 +404,20 @@ def test_send_of_a_folder_that_is_no_bundle_exits_2(
     config = write_config(tmp_path / "cfg")
     code, _, err = run(capsys, "send", str(tmp_path), "--config", str(config))
     assert code == cli.EXIT_USAGE and "is not a sitrep bundle" in err
+
+
+def test_build_today_sets_the_day_of_the_future_week_rule(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    # the demo week 2026-W47 runs 22 to 28 November 2026 (MMWR); a build dated 21 November
+    # sees it as a future week and is blocked, one dated the Monday after builds it
+    cfg = write_config(tmp_path, output__pdf=False)
+    code, out, err = run(capsys, "build", "--config", str(cfg), "--no-archive", "--today", "2026-11-21")
+    assert code == cli.EXIT_BLOCKED
+    assert "week-future" in err and "2026-W47" in err
+    assert not (tmp_path / "out" / "report.html").exists()
+    code, out, err = run(capsys, "build", "--config", str(cfg), "--no-archive", "--today", TODAY)
+    assert code == cli.EXIT_OK, err
+    assert (tmp_path / "out" / "report.html").is_file()
+    code, out, err = run(capsys, "build", "--config", str(cfg), "--today", "30/11/2026")
+    assert code == cli.EXIT_USAGE and "expected a date like 2026-11-30" in err

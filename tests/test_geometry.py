@@ -188,15 +188,29 @@ def test_ids_are_nfc_text_and_stripped(tmp_path: Path) -> None:
     gdf.loc[0, "district_id"] = " 001 "
     gdf.loc[1, "district_name"] = unicodedata.normalize("NFD", "Thévrisande")
     districts, report = read_districts(write(gdf, tmp_path / "d.gpkg", layer="d"), settings())
-    assert report.findings == ()
+    (note,) = report.findings
+    assert (note.rule, note.severity, note.value) == ("id-whitespace-stripped", Severity.INFO, "1")
+    assert note.message.endswith("at feature 1")
     assert districts.ids[0] == "001" and districts.names["002"] == "Thévrisande"
 
 
-def test_numeric_ids_are_an_error(tmp_path: Path) -> None:
+def test_whole_number_ids_are_read_as_digits_fractions_are_errors(tmp_path: Path) -> None:
+    from sitrep.ingest.geometry import NUMERIC_IDS_ATTR
+
     gdf = clean_polygons()
     gdf["district_id"] = [int(i) for i in gdf["district_id"]]
-    _, report = read_districts(write(gdf, tmp_path / "d.gpkg", layer="d"), settings())
-    assert one(report, "id-numeric").severity is Severity.ERROR
+    districts, report = read_districts(write(gdf, tmp_path / "d.gpkg", layer="d"), settings())
+    assert report.errors == ()
+    assert districts.ids == ("1", "2", "3", "4", "5", "6")
+    assert districts.frame.attrs[NUMERIC_IDS_ATTR] == {"column": "district_id", "numeric": True}
+    # padded to the width the table uses when the setting asks for it
+    districts, report = read_districts(tmp_path / "d.gpkg", settings(id_zero_pad=3))
+    assert districts.ids == tuple(IDS)
+    assert one(report, "id-zero-padded").value == "6"
+    gdf["district_id"] = [1.0, 2.5, 3.0, 4.0, 5.0, 6.0]
+    districts, report = read_districts(write(gdf, tmp_path / "f.gpkg", layer="d"), settings())
+    f = one(report, "id-numeric")
+    assert districts is None and f.severity is Severity.ERROR and f.value == "feature 2"
 
 
 def test_missing_id_column_and_missing_name_column(tmp_path: Path) -> None:

@@ -85,8 +85,12 @@ def test_h02_unmatched_ids_are_listed_with_lines_and_nothing_is_lost(
     code, doc, _ = check(week, table)
     assert code == 1
     unknown = {f["district_id"]: f for f in findings(doc, "id-not-in-boundaries")}
-    assert set(unknown) == {"1", "999"}  # ' 003' and '004 ' follow the declared strip rule
-    assert unknown["1"]["line"] == line_of(rows, "1", latest) and "'001'" in unknown["1"]["message"]
+    assert set(unknown) == {"999"}  # ' 003' and '004 ' follow the declared strip rule
+    (lost,) = findings(doc, "id-leading-zeros")  # '1' is '001' without its zeros
+    assert lost["line"] == line_of(rows, "1", latest) and "'001'" in lost["message"]
+    assert "input.id_zero_pad = 3" in lost["message"]
+    (stripped,) = findings(doc, "id-whitespace-stripped")
+    assert stripped["severity"] == "info" and stripped["value"] == "2"
     assert unknown["999"]["line"] == len(rows) + 1 and unknown["999"]["column"] == "district_id"
     assert [f["district_id"] for f in findings(doc, "district-missing-latest")] == ["001", "002"]
     # without the strip rule the padded ids are unmatched too, each with its near match
@@ -96,7 +100,7 @@ def test_h02_unmatched_ids_are_listed_with_lines_and_nothing_is_lost(
     finally:
         week.write_config(input={"strip_id_whitespace": True})
     unknown = {f["district_id"]: f for f in findings(doc, "id-not-in-boundaries")}
-    assert set(unknown) == {"1", " 003", "004 ", "999"}
+    assert set(unknown) == {" 003", "004 ", "999"}
     assert "'003'" in unknown[" 003"]["message"] and "'004'" in unknown["004 "]["message"]
 
 
@@ -119,11 +123,13 @@ def test_h02_ids_stay_text_in_csv_xlsx_and_parquet(week: Any, tmp_path: Path) ->
     xlsx = tmp_path / "ids.xlsx"
     book.save(xlsx)
     code, doc, _ = check(week, xlsx)
-    numeric = findings(doc, "id-numeric")
-    assert code == 1 and [(f["line"], f["column"], f["value"]) for f in numeric] == [
-        (5, "district_id", "4")
-    ]
-    # Parquet: an integer id column
+    # the number 4 is read as '4', which matches '004' only with the zeros it lost
+    (lost,) = findings(doc, "id-leading-zeros")
+    assert code == 1 and (lost["line"], lost["column"], lost["value"]) == (5, "district_id", "4")
+    assert "the table stored it as a number" in lost["message"]
+    (note,) = findings(doc, "id-numeric-as-text")
+    assert note["severity"] == "info" and "0 of 1 matched" in note["message"]
+    # Parquet: an integer id column, likewise
     frame = {h: [r[k] for r in rows] for k, h in enumerate(HEADER)}
     frame["district_id"] = [int(x) for x in frame["district_id"]]
     for h in ("reporting_sites", "ili_visits", "total_visits"):
@@ -131,7 +137,16 @@ def test_h02_ids_stay_text_in_csv_xlsx_and_parquet(week: Any, tmp_path: Path) ->
     parquet = tmp_path / "ids.parquet"
     pq.write_table(pa.table(frame), parquet)
     code, doc, _ = check(week, parquet)
-    assert code == 1 and [f["column"] for f in findings(doc, "id-numeric")] == ["district_id"]
+    assert code == 1 and {f["column"] for f in findings(doc, "id-leading-zeros")} == {"district_id"}
+    assert len(findings(doc, "id-leading-zeros")) == len(IDS)
+    # ... and accepted once the padding is declared
+    week.write_config(input={"id_zero_pad": 3})
+    try:
+        code, doc, _ = check(week, parquet)
+    finally:
+        week.raw["input"].pop("id_zero_pad")
+        week.write_config()
+    assert code == 0, doc
     # and a Parquet string column keeps the zeros
     frame["district_id"] = [r[0] for r in rows]
     pq.write_table(pa.table(frame), parquet)

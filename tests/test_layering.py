@@ -46,6 +46,44 @@ def test_shared_leaves_import_no_stage(leaf: str) -> None:
     assert not bad, f"{leaf}.py imports {sorted(bad)}"
 
 
+# Every module outside the four stage packages, with the sitrep modules it may import. A new
+# top-level module must be added here (the test below fails until it is), so nothing sits
+# outside the layering. Composers sit above the stages: pipeline runs them in order, batch runs
+# pipeline many times, delivery_jobs sends what deliver archived, cli fronts them all.
+TOP_LEVEL: dict[str, set[str]] = {
+    "__init__": set(SHARED),
+    "versions": set(),
+    "model": {"weeks", "errors"},
+    "errors": {"model"},  # for a type annotation only (TYPE_CHECKING)
+    "config": {"errors", "model", "weeks"},
+    "weeks": set(),
+    "cache": {"analysis", *SHARED},
+    "pipeline": {*ORDER, *SHARED, "cache", "versions"},
+    "batch": {"pipeline", "deliver", *SHARED},
+    "delivery_jobs": {*ORDER, *SHARED, "pipeline"},
+    "cli": {*ORDER, *SHARED, "pipeline", "batch", "delivery_jobs", "cache", "versions"},
+}
+
+
+def test_every_top_level_module_has_a_floor() -> None:
+    modules = {p.stem for p in PACKAGE.glob("*.py")}
+    missing = sorted(modules - set(TOP_LEVEL))
+    assert not missing, (
+        f"add {missing} to TOP_LEVEL in tests/test_layering.py with what they may import"
+    )
+    packages = {p.name for p in PACKAGE.iterdir() if (p / "__init__.py").exists()}
+    assert packages - set(ORDER) <= {"assets"}, sorted(packages - set(ORDER))
+
+
+@pytest.mark.parametrize("module", sorted(TOP_LEVEL))
+def test_top_level_module_imports_only_what_its_floor_allows(module: str) -> None:
+    path = PACKAGE / f"{module}.py"
+    if not path.exists():
+        pytest.skip(f"{module}.py is not in this tree")
+    bad = sitrep_imports(path) - TOP_LEVEL[module] - {module}
+    assert not bad, f"{module}.py imports {sorted(bad)}"
+
+
 def test_nothing_imports_the_cli() -> None:
     for path in sorted(PACKAGE.rglob("*.py")):
         if path.name != "cli.py":
@@ -63,7 +101,11 @@ def test_no_pyplot_and_no_module_level_weasyprint() -> None:
         tree = ast.parse(path.read_text(encoding="utf-8"))
         for node in tree.body:
             if isinstance(node, (ast.Import, ast.ImportFrom)):
-                names = [a.name for a in node.names] if isinstance(node, ast.Import) else [node.module or ""]
+                names = (
+                    [a.name for a in node.names]
+                    if isinstance(node, ast.Import)
+                    else [node.module or ""]
+                )
                 assert not any(n.startswith("weasyprint") for n in names), path
         text = path.read_text(encoding="utf-8")
         assert "matplotlib.pyplot" not in text, path

@@ -172,7 +172,13 @@ def test_ids_are_text_stripped_and_nfc(tmp_path: Path) -> None:
     assert nfd != "Thévrisande"
     rows = changed(rows, "002", WEEKS[0], "district_name", nfd)
     table, report = read(write_csv(tmp_path / "ids.csv", rows))
-    assert report.findings == ()
+    # the stripped ids are reported as one note listing their lines
+    (note,) = report.findings
+    stripped_lines = [line_of(rows, " 003", WEEKS[0]), line_of(rows, "003 ", WEEKS[1])]
+    assert (note.rule, note.severity, note.line, note.column, note.value) == (
+        "id-whitespace-stripped", Severity.INFO, stripped_lines[0], "district_id", "2"
+    )
+    assert note.message.endswith(f"on lines {stripped_lines[0]}, {stripped_lines[1]}")
     w0 = table.frame[table.frame["week"] == EpiWeek(2026, 44, MMWR)]
     assert "1" in set(w0["district_id"])  # never padded to '001' silently
     assert set(table.frame["district_id"]) == set(IDS) | {"1"}
@@ -216,8 +222,10 @@ def test_xlsx_text_ids_read_like_csv(tmp_path: Path, clean: Path) -> None:
     pd.testing.assert_frame_equal(comparable(a), comparable(b))
 
 
-def test_xlsx_numeric_ids_are_errors_per_cell(tmp_path: Path) -> None:
+def test_xlsx_whole_number_ids_are_read_as_digits_and_their_lines_kept(tmp_path: Path) -> None:
     import openpyxl
+
+    from sitrep.ingest.read import NUMERIC_ID_LINES_ATTR
 
     book = openpyxl.Workbook()
     sheet = book.active
@@ -229,13 +237,43 @@ def test_xlsx_numeric_ids_are_errors_per_cell(tmp_path: Path) -> None:
     path = tmp_path / "t.xlsx"
     book.save(path)
     table, report = read(path)
+    assert report.errors == ()
+    # the digits are kept as they are (never padded silently); the boundary check judges them
+    assert {"1", "2"} <= set(table.frame["district_id"])
+    assert table.frame.attrs[NUMERIC_ID_LINES_ATTR] == (2, 9)
+
+
+def test_xlsx_ids_that_are_not_whole_numbers_are_errors_per_cell(tmp_path: Path) -> None:
+    import openpyxl
+
+    book = openpyxl.Workbook()
+    sheet = book.active
+    sheet.append(HEADER)
+    rows = clean_rows()
+    odd = {0: 4101.5, 7: 1.0e20}  # a fraction, and a float too large to hold every digit
+    for k, r in enumerate(rows):
+        sheet.append([odd.get(k, r[0]), r[1], r[2], int(r[3]), int(r[4]), int(r[5])])
+    path = tmp_path / "t.xlsx"
+    book.save(path)
+    table, report = read(path)
     hits = only(report, "id-numeric")
     assert [(f.line, f.column, f.value, f.severity) for f in hits] == [
-        (2, "district_id", "1", Severity.ERROR),
-        (9, "district_id", "2", Severity.ERROR),
+        (2, "district_id", "4101.5", Severity.ERROR),
+        (9, "district_id", "1e+20", Severity.ERROR),
     ]
-    assert "text" in hits[0].message.lower()
+    assert "whole number" in hits[0].message and "Text" in hits[0].message
     assert table is None
+
+
+def test_zero_pad_setting_pads_all_digit_ids_with_one_note(tmp_path: Path) -> None:
+    rows = changed(clean_rows(), "003", WEEKS[0], "district_id", "3")
+    table, report = read(write_csv(tmp_path / "ids.csv", rows), id_zero_pad=3)
+    (note,) = only(report, "id-zero-padded")
+    assert (note.severity, note.line, note.value) == (
+        Severity.INFO, line_of(rows, "3", WEEKS[0]), "1"
+    )
+    assert "3 -> 003" in note.message and "input.id_zero_pad = 3" in note.message
+    assert set(table.frame["district_id"]) == set(IDS)
 
 
 def test_xlsx_missing_sheet(tmp_path: Path) -> None:
@@ -266,9 +304,11 @@ def test_parquet_text_ids_read_like_csv(tmp_path: Path, clean: Path) -> None:
     pd.testing.assert_frame_equal(comparable(a), comparable(b))
 
 
-def test_parquet_integer_ids_are_an_error(tmp_path: Path) -> None:
+def test_parquet_integer_ids_are_read_as_digits_fractions_are_errors(tmp_path: Path) -> None:
     import pyarrow as pa
     import pyarrow.parquet as pq
+
+    from sitrep.ingest.read import NUMERIC_ID_LINES_ATTR
 
     rows = clean_rows()
     data = {h: [r[k] for r in rows] for k, h in enumerate(HEADER)}
@@ -277,8 +317,14 @@ def test_parquet_integer_ids_are_an_error(tmp_path: Path) -> None:
         data[h] = [int(v) for v in data[h]]
     pq.write_table(pa.table(data), tmp_path / "t.pq")
     table, report = read(tmp_path / "t.pq")
+    assert report.errors == ()
+    assert set(table.frame["district_id"]) == {str(int(i)) for i in IDS}
+    assert table.frame.attrs[NUMERIC_ID_LINES_ATTR] == tuple(range(2, len(rows) + 2))
+    data["district_id"] = [float(v) + (0.5 if k == 3 else 0.0) for k, v in enumerate(data["district_id"])]
+    pq.write_table(pa.table(data), tmp_path / "f.pq")
+    table, report = read(tmp_path / "f.pq")
     (f,) = only(report, "id-numeric")
-    assert (f.severity, f.column, f.line) == (Severity.ERROR, "district_id", None)
+    assert (f.severity, f.column, f.line, f.value) == (Severity.ERROR, "district_id", 5, "4.5")
     assert table is None
 
 
@@ -518,6 +564,55 @@ def test_week_start_on_wrong_weekday(tmp_path: Path) -> None:
     )
     assert "Sunday" in f.message and "Monday" in f.message
     assert table is None
+
+
+def test_declared_date_format_reads_us_dates_and_groups_cells_that_do_not_fit(
+    tmp_path: Path, clean: Path
+) -> None:
+    from sitrep.model import ValidationReport
+
+    ref, _ = read(clean)
+    # MMWR 2026-W44 ends Saturday 2026-11-07, written 11/07/2026 month first (epiweeks.Week(2026, 44))
+    end = {w: EpiWeek.parse(w).end for w in WEEKS}
+    assert end["2026-W44"] == dt.date(2026, 11, 7)
+    rows = [r[:2] + [end[r[2]].strftime("%m/%d/%Y")] + r[3:] for r in clean_rows()]
+    header = HEADER[:2] + ["week_ending"] + HEADER[3:]
+    path = write_csv(tmp_path / "us.csv", rows, header)
+    # never guessed: without the declaration every cell is an error naming the setting
+    table, report = read(path, columns={"week_end": "week_ending"})
+    assert table is None and {f.rule for f in report.findings} == {"week-invalid"}
+    assert "input.date_format" in report.findings[0].message
+    table, report = read(path, columns={"week_end": "week_ending"}, date_format="%m/%d/%Y")
+    assert report.findings == () and list(table.frame["week"]) == list(ref.frame["week"])
+    # day-first cells under a month-first declaration (days 14, 21, 28 cannot be months): one
+    # group for the column
+    rows = [r[:2] + [end[r[2]].strftime("%d/%m/%Y")] + r[3:] for r in clean_rows(weeks=WEEKS[1:])]
+    table, report = read(write_csv(tmp_path / "eu.csv", rows, header),
+                         columns={"week_end": "week_ending"}, date_format="%m/%d/%Y")
+    (group,) = ValidationReport(report.errors).grouped()
+    assert (group.rule, group.first.column, group.count) == ("week-invalid", "week_ending", len(rows))
+    assert "input.date_format = '%m/%d/%Y'" in group.message() and "'14/11/2026'" in group.message()
+
+
+def test_first_sheet_without_the_columns_names_the_sheet_that_has_them(tmp_path: Path) -> None:
+    import openpyxl
+
+    book = openpyxl.Workbook()
+    book.active.title = "Read me"
+    book.active.append(["This export holds the weekly ILI counts by district."])
+    sheet = book.create_sheet("Week 47")
+    sheet.append(HEADER)
+    for r in clean_rows():
+        sheet.append([r[0], r[1], r[2], int(r[3]), int(r[4]), int(r[5])])
+    path = tmp_path / "book.xlsx"
+    book.save(path)
+    table, report = read(path)
+    (f,) = report.findings
+    assert (f.rule, f.severity, f.value) == ("sheet-elsewhere", Severity.ERROR, "Week 47")
+    assert "'Read me'" in f.message and "input.sheet = 'Week 47'" in f.message
+    assert table is None
+    table, report = read(path, sheet="Week 47")
+    assert report.errors == () and len(table.frame) == len(clean_rows())
 
 
 def test_ambiguous_week_columns(tmp_path: Path, clean: Path) -> None:

@@ -154,13 +154,16 @@ def test_ids_not_in_boundaries_one_finding_per_id(tmp_path: Path, districts: Dis
     report = validate_table(table(tmp_path, rows), districts, VS)
     hits = [f for f in report.findings if f.rule == "id-not-in-boundaries"]
     assert [(f.district_id, f.line, f.severity) for f in hits] == [
-        ("1", 2, Severity.ERROR),
         ("0003", 4, Severity.ERROR),
         ("999", 6, Severity.ERROR),
     ]
-    assert "lines 2, 8" in hits[0].message and "'001'" in hits[0].message
-    assert "'003'" in hits[1].message
-    assert "no similar id" in hits[2].message
+    assert "'003'" in hits[0].message
+    assert "no similar id" in hits[1].message
+    # an id that lost its leading zeros gets its own rule, naming the padding setting
+    lost = one(report, "id-leading-zeros")
+    assert (lost.district_id, lost.line, lost.severity) == ("1", 2, Severity.ERROR)
+    assert "lines 2, 8" in lost.message and "'001'" in lost.message
+    assert "input.id_zero_pad = 3" in lost.message
 
 
 def test_id_with_spaces_kept_suggests_the_trimmed_id(tmp_path: Path, districts: Districts) -> None:
@@ -198,6 +201,53 @@ def test_mixed_weeks_in_a_weekly_file(tmp_path: Path) -> None:
     rows = rows + [clean_rows()[0]]  # one W44 row slipped in, written on the last line
     f = one(validate_table(table(tmp_path, rows), None, VS, weekly_file=True), "week-mixed")
     assert (f.severity, f.line, f.column, f.value) == (Severity.ERROR, 8, "epi_week", "2026-W44")
+    # the message names both weeks with their row counts and the lines of the stray week
+    assert "2026-W44 (1 rows), 2026-W47 (6 rows)" in f.message
+    assert "rows of 2026-W44 are on line 8" in f.message and "input.weekly_file" in f.message
+
+
+def test_mixed_weeks_when_one_week_is_inferred_from_the_prior_file(tmp_path: Path) -> None:
+    """input.weekly_file unset: last week's file held one week, so this one must too."""
+    import tomllib
+
+    from sitrep.config import config_from_dict
+    from sitrep.pipeline import read_inputs
+
+    districts_path = tmp_path / "d.gpkg"
+    clean_polygons().to_file(districts_path, layer="d", driver="GPKG")
+    prior = write_csv(tmp_path / "w46.csv", [r for r in clean_rows() if r[2] == WEEKS[2]])
+    mixed = [r for r in clean_rows() if r[2] in (WEEKS[2], WEEKS[3])]
+    current = write_csv(tmp_path / "w47.csv", mixed)
+    raw = tomllib.loads(
+        f"[input]\ntable = '{current}'\nprior_table = '{prior}'\nboundaries = '{districts_path}'\n"
+    )
+    found = read_inputs(config_from_dict(raw), today=dt.date(2026, 12, 1)).validation
+    f = one(found, "week-mixed")
+    lines = [line_of(mixed, i, WEEKS[2]) for i in IDS]
+    assert (f.severity, f.line, f.value) == (Severity.ERROR, lines[0], "2026-W46")
+    assert f"on lines {', '.join(map(str, lines))}" in f.message
+    assert "last week's file (input.prior_table) held one week" in f.message
+    # declaring a season-to-date extract lifts it
+    raw["input"]["weekly_file"] = False
+    found = read_inputs(config_from_dict(raw), today=dt.date(2026, 12, 1)).validation
+    assert "week-mixed" not in rules(found)
+
+
+def test_district_with_no_visits_and_no_sites_is_a_located_warning(tmp_path: Path) -> None:
+    rows = changed(clean_rows(), "004", WEEKS[3], "total_visits", "0")
+    rows = changed(rows, "004", WEEKS[3], "ili_visits", "0")
+    closed = changed(rows, "004", WEEKS[3], "reporting_sites", "0")
+    f = one(validate_table(table(tmp_path, closed), None, VS), "district-no-visits")
+    assert (f.severity, f.line, f.column, f.district_id) == (
+        Severity.WARNING, line_of(closed, "004", WEEKS[3]), "total_visits", "004"
+    )
+    assert "0 reporting sites" in f.message and "closed" in f.message
+    # with sites reporting, the message says so; a past week with no visits is not this rule
+    f = one(validate_table(table(tmp_path, rows), None, VS), "district-no-visits")
+    assert "although 3 sites reported" in f.message  # counts(3, w): 3 + 3 % 3 sites
+    past = changed(changed(clean_rows(), "004", WEEKS[1], "total_visits", "0"),
+                   "004", WEEKS[1], "ili_visits", "0")
+    assert "district-no-visits" not in rules(validate_table(table(tmp_path, past), None, VS))
 
 
 def test_future_week(tmp_path: Path) -> None:
@@ -281,6 +331,9 @@ def test_rate_column_disagreeing_with_counts(tmp_path: Path) -> None:
 def _spike_rows(last_ili: int, visits_scale: int = 1) -> list[list[str]]:
     weeks = [str(EpiWeek(2026, 38) + k) for k in range(9)]
     rows = clean_rows(weeks=weeks, ids=["001", "002"])
+    for week in weeks:  # district 001 stays at 2.0 %: the jurisdiction does not move
+        rows = changed(rows, "001", week, "ili_visits", "20")
+        rows = changed(rows, "001", week, "total_visits", "1000")
     # district 002: 8 weeks of ILI% 2.0, 2.1, 1.9, 2.0, 2.2, 1.8, 2.0, 2.1 of 100,000 visits
     # (binomial SE of 2% at that size is 0.044 pp, below the MAD, so the MAD sets the scale)
     for k, ili in enumerate([20, 21, 19, 20, 22, 18, 20, 21, last_ili]):
@@ -316,6 +369,59 @@ def test_spike_rule_allows_for_binomial_noise_in_small_districts(tmp_path: Path)
     # 1,000 visits: SE of 2% = 100*sqrt(0.02*0.98/1000) = 0.443 pp [HAND], so 2.6% gives z = 1.4
     vs = dataclasses.replace(VS, spike_mad_floor_pp=0.1)
     assert validate_table(table(tmp_path, _spike_rows(26, visits_scale=100)), None, vs).findings == ()
+
+
+def _rising_week(n: int = 30, jump: dict[str, float] | None = None) -> list[list[str]]:
+    """n districts, 8 flat weeks at 1.0-2.45 % then a week in which every district doubles.
+
+    Visits are 2,000 to 4,900 per district and week; ``jump`` multiplies a district's
+    last-week ILI count further (a data fault such as an extra zero).
+    """
+    weeks = [str(EpiWeek(2026, 38) + k) for k in range(9)]
+    rows = []
+    for k, week in enumerate(weeks):
+        for d in range(n):
+            ident = f"{d + 1:03d}"
+            total = 2000 + 100 * d
+            base = 0.010 + 0.0005 * d  # each district's own level
+            wobble = (0.0, 0.0004, -0.0003, 0.0002, -0.0002, 0.0003, -0.0004, 0.0001)[k % 8]
+            share = base + wobble if k < 8 else 2.0 * base
+            ili = round(total * share * ((jump or {}).get(ident, 1.0) if k == 8 else 1.0))
+            rows.append([ident, f"D{ident}", week, "3", str(ili), str(total)])
+    return rows
+
+
+def test_spike_rule_does_not_flood_in_a_rising_week(tmp_path: Path) -> None:
+    """Every district doubling is the jurisdiction's movement, not 30 data faults."""
+    rows = _rising_week()
+    # judged against its own 8 weeks only, every district would be far out: e.g. district
+    # 001 goes from about 1.0 % to 2.0 % with MAD 0.03 pp and a floor of 0.2 pp -> z about 5
+    assert "value-spike" not in rules(validate_table(table(tmp_path, rows), None, VS))
+    # a ten-fold jump in one district on top of the rise is still caught, and only that one
+    rows = _rising_week(jump={"017": 5.0})
+    f = one(validate_table(table(tmp_path, rows), None, VS), "value-spike")
+    assert (f.district_id, f.line) == ("017", line_of(rows, "017", str(EpiWeek(2026, 46))))
+    assert "movement this week (x2.0" in f.message and "other districts' changes" in f.message
+
+
+def test_spike_rule_with_only_the_prior_week_catches_a_ten_fold_jump(tmp_path: Path) -> None:
+    """Weekly files: the reference is last week's file; a rising week is still not flagged."""
+    rows = _rising_week(jump={"009": 10.0 / 2.0})
+    w45, w46 = str(EpiWeek(2026, 45)), str(EpiWeek(2026, 46))
+    prior = table(tmp_path, [r for r in rows if r[2] == w45])
+    current_rows = [r for r in rows if r[2] == w46]
+    current = table(tmp_path, current_rows)
+    # without the prior week the rule has nothing to compare with
+    assert "value-spike" not in rules(validate_table(current, None, VS, weekly_file=True))
+    report = validate_table(current, None, VS, weekly_file=True, prior=prior)
+    f = one(report, "value-spike")
+    assert (f.district_id, f.line) == ("009", line_of(current_rows, "009", w46))
+    assert "its previous week" in f.message and w45 in f.message
+    # the doubling alone, judged on one previous week, flags nobody
+    plain = _rising_week()
+    prior = table(tmp_path, [r for r in plain if r[2] == w45])
+    current = table(tmp_path, [r for r in plain if r[2] == w46])
+    assert "value-spike" not in rules(validate_table(current, None, VS, weekly_file=True, prior=prior))
 
 
 # ----------------------------------------------------------------------------- against the prior table
@@ -492,7 +598,7 @@ def test_findings_are_sorted(tmp_path: Path, districts: Districts) -> None:
     # file-level findings (no line) first, then by line
     assert [(f.rule, f.line) for f in report.findings] == [
         ("district-missing-latest", None),
-        ("id-not-in-boundaries", 2),
+        ("id-leading-zeros", 2),
         ("count-ili-exceeds-total", line_of(rows, "006", WEEKS[3])),
     ]
 

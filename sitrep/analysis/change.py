@@ -12,7 +12,7 @@ from __future__ import annotations
 import dataclasses
 
 import numpy as np
-from scipy import special  # type: ignore[import-untyped]
+from scipy import special
 
 from sitrep.analysis.proportions import (
     BoolArray,

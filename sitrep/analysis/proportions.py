@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import numpy as np
 import numpy.typing as npt
-from scipy import special, stats  # type: ignore[import-untyped]
+from scipy import special, stats
 
 from sitrep.errors import AnalysisError
 

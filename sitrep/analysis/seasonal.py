@@ -33,7 +33,7 @@ from decimal import ROUND_HALF_UP, Decimal
 
 import numpy as np
 import numpy.typing as npt
-from scipy import stats  # type: ignore[import-untyped]
+from scipy import stats
 
 __all__ = [
     "DEFAULT_DELTA",

@@ -116,6 +116,7 @@ def build_graph(
     kind: GraphKind = "queen",
     k: int = 5,
     link_islands_k: int = 0,
+    metric: gpd.GeoDataFrame | None = None,
 ) -> DistrictGraph:
     """Build the row-standardised neighbour graph of the districts.
 
@@ -124,9 +125,10 @@ def build_graph(
     edge is needed; vertex-set method, ``strict=False``, which assumes a clean
     coverage) or :meth:`~libpysal.graph.Graph.build_knn` on each district's
     ``representative_point()`` (always inside the polygon; euclidean distance
-    in the frame's CRS, or in metres in the frame's UTM zone, from
-    ``GeoDataFrame.estimate_utm_crs()``, when the CRS is geographic: degrees of
-    longitude and latitude are not comparable lengths). Weights are binary, then row-standardised
+    in ``metric`` when given, else in the frame's CRS, or in metres in the CRS
+    chosen by :func:`sitrep.ingest.geometry.local_crs` when the frame's CRS is
+    geographic: degrees of longitude and latitude are not comparable
+    lengths). Contiguity is always found on ``frame`` itself. Weights are binary, then row-standardised
     (``transform("r")``), so w_ij = 1/|N(i)| for j in N(i).
 
     Parameters
@@ -145,6 +147,9 @@ def build_graph(
         boundary to boundary (``GeoSeries.distance``, in metres as for knn
         when the CRS is geographic; ties broken by id), in both directions.
         0 leaves islands unlinked.
+    metric : geopandas.GeoDataFrame, optional
+        The same districts, in the same row order, in the projected CRS in
+        which distances are measured (``Districts.map_frame``).
 
     Returns
     -------
@@ -199,10 +204,17 @@ def build_graph(
 
     indexed = frame.set_axis(list(ids), axis=0)
     notes: list[str] = []
-    metric = indexed
-    if (kind == "knn" or link_islands_k > 0) and frame.crs is not None and frame.crs.is_geographic:
+    if metric is not None:
+        if len(metric) != n:
+            raise AnalysisError(
+                f"the projected districts have {len(metric)} rows for {n} districts"
+            )
+        metric = metric.set_axis(list(ids), axis=0)
+    elif (kind == "knn" or link_islands_k > 0) and frame.crs is not None and frame.crs.is_geographic:
         metric, note = _projected(indexed)
         notes.append(note)
+    else:
+        metric = indexed
     from libpysal.graph import Graph
 
     with warnings.catch_warnings():
@@ -355,17 +367,18 @@ def _neighbours_of(g: Graph, ids: tuple[str, ...]) -> dict[str, tuple[str, ...]]
 
 def _projected(frame: gpd.GeoDataFrame) -> tuple[gpd.GeoDataFrame, str]:
     """``frame`` in the UTM zone of its centre, for distances in metres, and a note saying so."""
+    from sitrep.ingest.geometry import local_crs
+
     try:
-        utm = frame.estimate_utm_crs()
-        projected = frame.to_crs(utm)
+        crs, how = local_crs(frame)
+        projected = frame.to_crs(crs)
     except Exception as exc:  # pyproj raises several types for impossible transforms
         raise AnalysisError(
             f"distances cannot be measured in metres: the boundaries are in a geographic CRS "
-            f"and no UTM zone fits them ({type(exc).__name__}: {exc}); give the boundaries in "
-            "a projected CRS"
+            f"and cannot be projected ({type(exc).__name__}: {exc}); set input.map_crs"
         ) from exc
     return projected, (
-        f"distances between districts were measured in metres in {utm.name} (the boundaries "
+        f"distances between districts were measured in metres in {how} (the boundaries "
         "are in longitude/latitude, where distances in degrees are not comparable)"
     )
 

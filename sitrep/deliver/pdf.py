@@ -128,7 +128,7 @@ def make_url_fetcher(asset_dir: Path | None, *, on_refused: OnRefused = "raise")
         raise ValueError(f"on_refused must be 'raise' or 'skip', got {on_refused!r}")
     root = Path(asset_dir).resolve() if asset_dir is not None else None
 
-    class SitrepURLFetcher(URLFetcher):  # type: ignore[misc]
+    class SitrepURLFetcher(URLFetcher):
         """data: URIs and files inside the asset folder; everything else refused."""
 
         def __init__(self) -> None:
@@ -215,7 +215,7 @@ def _render(
                 message=r"unclosed file .*sRGB2014\.icc",
                 category=ResourceWarning,
             )
-            return document.write_pdf(  # type: ignore[no-any-return]
+            return document.write_pdf(
                 pdf_variant=pdf_variant,
                 attachments=extra or None,
                 pdf_identifier=None if pdf_variant is None else True,
@@ -606,7 +606,7 @@ class PdfWorker:
             raise DeliveryError("the PDF render process sent an unreadable result") from exc
         if status != "ok":
             raise DeliveryError(data)
-        return data  # type: ignore[no-any-return]
+        return data
 
 
 def _fork_server() -> int:

@@ -20,14 +20,17 @@ import numpy as np
 
 from sitrep.config import InputSettings
 from sitrep.errors import InputError
-from sitrep.ingest.read import FindingCollector
+from sitrep.ingest.read import FindingCollector, line_list, pad_id
 from sitrep.model import Districts, InputFile, Severity, ValidationReport
 
 __all__ = [
     "GAP_SHARE",
+    "NUMERIC_IDS_ATTR",
     "REPAIR_AREA_TOLERANCE",
     "REPORT_FONTS",
     "RULES",
+    "UTM_MAX_SPAN_DEGREES",
+    "local_crs",
     "missing_glyphs",
     "read_districts",
 ]
@@ -45,10 +48,17 @@ RULES: tuple[tuple[str, str], ...] = (
     ("crs-invalid", "input.boundaries_crs is not a CRS pyproj understands"),
     ("crs-conflict", "the file's CRS differs from input.boundaries_crs"),
     ("crs-coordinates-out-of-range", "coordinates outside lon/lat bounds in a geographic CRS"),
+    ("map-crs-invalid", "input.map_crs is not a projected CRS pyproj understands"),
+    (
+        "map-projection-failed",
+        "the boundaries cannot be projected to the CRS of the maps and distances",
+    ),
     ("column-missing", "the id column is not in the layer"),
     ("column-optional-missing", "the name column is not in the layer; ids are used (warning)"),
     ("id-missing", "a feature has no district id"),
-    ("id-numeric", "the id column is stored as numbers, not text"),
+    ("id-numeric", "an id stored as a number is not a whole number (error)"),
+    ("id-whitespace-stripped", "ids had surrounding spaces, removed (info)"),
+    ("id-zero-padded", "ids were padded with zeros to input.id_zero_pad digits (info)"),
     ("id-duplicated", "two features carry the same district id"),
     ("geometry-missing", "a district's geometry is null or empty"),
     ("geometry-not-polygon", "a district's geometry is not a Polygon or MultiPolygon"),
@@ -70,8 +80,14 @@ RULES: tuple[tuple[str, str], ...] = (
 )
 """Rule ids of this module with one-line descriptions (for the documentation)."""
 
+NUMERIC_IDS_ATTR = "numeric_ids"
+"""Key in ``Districts.frame.attrs``: ``{"column": id field, "numeric": stored as numbers}``."""
+
 REPAIR_AREA_TOLERANCE = 0.01
 """A repair is safe when the area changes by at most this share (see :func:`read_districts`)."""
+
+UTM_MAX_SPAN_DEGREES = 6.0
+"""A layer in degrees spanning at most this much longitude is mapped in a UTM zone (see :func:`local_crs`)."""
 
 GAP_SHARE = 0.01
 """A gap narrower than this share of sqrt(area) is a sliver, not sea (see :func:`read_districts`)."""
@@ -120,6 +136,15 @@ def read_districts(
     inside it; otherwise it is an error. This catches swapped longitude and
     latitude and a wrongly declared CRS, which the range check cannot when
     the swapped numbers are still valid degrees.
+
+    Maps and distances (k nearest neighbours, island links) need a projected
+    CRS. It is ``settings.map_crs`` when set (it must be projected), else the
+    file's own CRS when that is projected, else one estimated from the layer
+    by :func:`local_crs` (a layer in degrees, such as any RFC 7946 GeoJSON).
+    ``Districts.projected`` holds the projected frame and
+    ``Districts.projection`` the sentence saying which CRS and why (for the
+    methods note and the manifest). Contiguity is found on the boundaries as
+    read, so projecting never changes the neighbours.
 
     Two warnings need no setting. ``geometry-gap``: a district that touches
     no other district although another lies closer than ``GAP_SHARE`` (1 %)
@@ -197,9 +222,159 @@ def read_districts(
         return None, out.report()
     if not _check_extent(result, settings, out):
         return None, out.report()
+    projection = _project(result, settings, out)
+    if projection is None:
+        return None, out.report()
+    projected, note = projection
     _check_gaps(result, out)
     _check_glyphs(result, settings, out)
-    return Districts(frame=result, source=source), out.report()
+    return (
+        Districts(frame=result, source=source, projected=projected, projection=note),
+        out.report(),
+    )
+
+
+def local_crs(frame: Any) -> tuple[Any, str]:
+    """A projected CRS suited to a layer in longitude/latitude, and why it was chosen.
+
+    The layer's longitude range is the shortest arc of the circle holding
+    every vertex, so a layer on both sides of the antimeridian (longitudes
+    near +180 and -180, as RFC 7946 §3.1.9 requires such files to be split)
+    gets a centre near 180° and not near 0°. Its centre is the middle of that
+    arc and of the latitude range.
+
+    - When the arc spans at most :data:`UTM_MAX_SPAN_DEGREES` (6°) and the
+      centre's latitude is within the UTM band (80° S to 84° N): the WGS 84
+      UTM zone holding the centre (EPSG:326zz north, 327zz south; zone =
+      floor((longitude + 180) / 6) + 1). Every vertex is then at most 6° from
+      the zone's central meridian, where the transverse Mercator scale error
+      stays below about 0.6 % (1 + (Δλ·cos φ)² / 2, common practice).
+    - Otherwise: a Lambert azimuthal equal-area projection centred on the
+      centre (WGS 84 ellipsoid, metres), which keeps areas and has no zone
+      edge for a large or polar layer.
+
+    Parameters
+    ----------
+    frame : geopandas.GeoDataFrame or GeoSeries
+        The layer, in a geographic CRS (x = longitude, y = latitude).
+
+    Returns
+    -------
+    tuple of (pyproj.CRS, str)
+        The CRS and a phrase describing it, e.g. ``"WGS 84 / UTM zone 32N
+        (EPSG:32632), the UTM zone of the layer's centre (6.00° E, 45.50° N)"``.
+    """
+    import shapely
+    from pyproj import CRS
+
+    geoms = np.asarray(frame.geometry.to_numpy() if hasattr(frame, "geometry") else frame, dtype=object)
+    xy = shapely.get_coordinates(geoms)
+    lons = np.unique(((xy[:, 0] + 180.0) % 360.0) - 180.0)
+    if lons.size == 0:
+        raise ValueError("the layer has no coordinates")
+    if lons.size == 1:
+        west, span = float(lons[0]), 0.0
+    else:
+        gaps = np.diff(np.concatenate([lons, [lons[0] + 360.0]]))
+        k = int(np.argmax(gaps))
+        west = float(lons[(k + 1) % lons.size])
+        span = 360.0 - float(gaps[k])
+    lon = ((west + span / 2.0 + 180.0) % 360.0) - 180.0
+    lat = (float(xy[:, 1].min()) + float(xy[:, 1].max())) / 2.0
+    where = f"{abs(lon):.2f}° {'E' if lon >= 0 else 'W'}, {abs(lat):.2f}° {'N' if lat >= 0 else 'S'}"
+    if span <= UTM_MAX_SPAN_DEGREES and -80.0 <= lat <= 84.0:
+        zone = int((lon + 180.0) // 6.0) % 60 + 1
+        code = (32600 if lat >= 0 else 32700) + zone
+        crs = CRS.from_epsg(code)
+        return crs, f"{crs.name} (EPSG:{code}), the UTM zone of the layer's centre ({where})"
+    from pyproj.crs import GeographicCRS, ProjectedCRS
+    from pyproj.crs.coordinate_operation import LambertAzimuthalEqualAreaConversion
+
+    crs = ProjectedCRS(
+        LambertAzimuthalEqualAreaConversion(round(lat, 4), round(lon, 4)),
+        name=f"WGS 84 / Lambert azimuthal equal-area centred on {where}",
+        geodetic_crs=GeographicCRS(datum="WGS84"),
+    )
+    return crs, (
+        f"a Lambert azimuthal equal-area projection centred on the layer ({where}; "
+        f"the layer spans {span:.1f}° of longitude, too wide for one UTM zone)"
+    )
+
+
+def _project(
+    frame: Any, settings: InputSettings, out: FindingCollector
+) -> tuple[Any, str] | None:
+    """The districts in the CRS of maps and distances and the sentence saying which (None: error)."""
+    from pyproj import CRS
+    from pyproj.exceptions import CRSError
+
+    own = CRS(frame.crs)
+    target = None
+    if settings.map_crs:
+        try:
+            target = CRS.from_user_input(settings.map_crs)
+        except CRSError as exc:
+            out.error(
+                "map-crs-invalid",
+                f"input.map_crs = {settings.map_crs!r} is not a CRS pyproj understands ({exc}); "
+                "give a projected CRS such as 'EPSG:3035', or remove the setting",
+                value=settings.map_crs,
+            )
+            return None
+        if not target.is_projected:
+            out.error(
+                "map-crs-invalid",
+                f"input.map_crs = {settings.map_crs!r} is {target.name}, not a projected CRS; "
+                "maps and distances need units of length. Give a projected CRS such as "
+                "'EPSG:3035', or remove the setting to have one chosen from the layer",
+                value=settings.map_crs,
+            )
+            return None
+        how = f"{target.name}, as set by input.map_crs"
+    elif own.is_projected:
+        return None, (
+            f"Maps are drawn and distances measured in the boundaries' own CRS, {own.name}; "
+            "contiguity is found on the boundaries as read."
+        )
+    else:
+        try:
+            target, how = local_crs(frame)
+        except (ValueError, CRSError) as exc:
+            out.error(
+                "map-projection-failed",
+                f"no projected CRS could be chosen for the boundaries ({exc}); set input.map_crs",
+            )
+            return None
+    try:
+        projected = frame.to_crs(target)
+        ok = bool(np.all(np.isfinite(_bounds(projected))))
+    except Exception as exc:  # pyproj raises several types for impossible transforms
+        ok, projected = False, None
+        detail = f" ({type(exc).__name__}: {exc})"
+    else:
+        detail = ""
+    if not ok:
+        out.error(
+            "map-projection-failed",
+            f"the boundaries ({own.name}) cannot be projected to {target.name} for the maps "
+            f"and distances{detail}: some coordinates have no finite value there. Set "
+            "input.map_crs to a projected CRS that covers the whole layer",
+            value=settings.map_crs,
+        )
+        return None
+    kind = "longitude/latitude" if own.is_geographic else "another CRS"
+    return projected, (
+        f"The boundaries are in {own.name} ({kind}); maps are drawn and distances measured in "
+        f"{how}. Contiguity is found on the boundaries as read, so projecting does not change "
+        "the neighbours."
+    )
+
+
+def _bounds(frame: Any) -> Any:
+    """Bounds of every geometry of ``frame`` (n x 4 array)."""
+    import shapely
+
+    return shapely.bounds(np.asarray(frame.geometry.to_numpy(), dtype=object))
 
 
 def _read_layer(path: Path, ext: str, settings: InputSettings, out: FindingCollector) -> Any:
@@ -331,22 +506,62 @@ def _check_features(frame: Any, settings: InputSettings, out: FindingCollector) 
         )
         return None
     raw_ids = frame[id_col]
-    if pd.api.types.is_numeric_dtype(raw_ids.dtype) and not pd.api.types.is_bool_dtype(raw_ids):
-        out.error(
-            "id-numeric",
-            f"expected district ids stored as text, got a numeric column {id_col!r}; numbers "
-            "lose leading zeros ('001' becomes 1). Store the id field as text and export again",
-            column=id_col,
-        )
-        return None
+    numeric = pd.api.types.is_numeric_dtype(raw_ids.dtype) and not pd.api.types.is_bool_dtype(
+        raw_ids
+    )
     strip = settings.strip_id_whitespace
     ids: list[str | None] = []
-    for v in raw_ids:
+    stripped: list[int] = []
+    for k, v in enumerate(raw_ids):
         if v is None or (isinstance(v, float) and np.isnan(v)):
             ids.append(None)
             continue
+        if numeric:
+            number = float(v)
+            if not (number.is_integer() and abs(number) < 2**53):
+                out.error(
+                    "id-numeric",
+                    f"expected a district id in {id_col!r}, got the number {v!r} at feature "
+                    f"{k + 1}, which is not a whole number; store the id field as text and "
+                    "export again",
+                    column=id_col,
+                    value=f"feature {k + 1}",
+                )
+                ids.append(None)
+                continue
+            ids.append(str(int(number)))
+            continue
         text = unicodedata.normalize("NFC", str(v))
+        if strip and text.strip() != text and text.strip():
+            stripped.append(k + 1)
         ids.append(text.strip() if strip else text)
+    if out.has_errors:
+        return None
+    if stripped:
+        out.add(
+            Severity.INFO,
+            "id-whitespace-stripped",
+            f"{len(stripped)} district id{'s' if len(stripped) != 1 else ''} in {id_col!r} had "
+            "spaces around them, removed before matching (input.strip_id_whitespace), at "
+            f"feature{'s' if len(stripped) != 1 else ''} {line_list(stripped)}",
+            column=id_col,
+            value=str(len(stripped)),
+        )
+    if settings.id_zero_pad:
+        width = settings.id_zero_pad
+        padded = [None if i is None else pad_id(i, width) for i in ids]
+        changed = [k for k, (a, b) in enumerate(zip(ids, padded, strict=True)) if a != b]
+        if changed:
+            out.add(
+                Severity.INFO,
+                "id-zero-padded",
+                f"{len(changed)} district id{'s' if len(changed) != 1 else ''} in {id_col!r} "
+                f"were padded with leading zeros to {width} digits (input.id_zero_pad = "
+                f"{width}; e.g. {ids[changed[0]]} -> {padded[changed[0]]})",
+                column=id_col,
+                value=str(len(changed)),
+            )
+            ids = padded
     if name_col and name_col in frame.columns:
         names = [
             ""
@@ -444,7 +659,9 @@ def _check_features(frame: Any, settings: InputSettings, out: FindingCollector) 
         geometry=gpd.GeoSeries(geoms, crs=frame.crs),
     )
     order = np.argsort(np.asarray(ids, dtype=str), kind="stable")
-    return result.iloc[order].reset_index(drop=True)
+    result = result.iloc[order].reset_index(drop=True)
+    result.attrs[NUMERIC_IDS_ATTR] = {"column": id_col, "numeric": bool(numeric)}
+    return result
 
 
 def _safe_repair(geom: Any) -> Any:

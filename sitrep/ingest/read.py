@@ -30,7 +30,7 @@ from sitrep.errors import InputError
 from sitrep.model import CountTable, Finding, InputFile, Severity, ValidationReport
 from sitrep.weeks import EpiWeek, WeekSystem
 
-__all__ = ["RULES", "SOURCE_COLUMNS_ATTR", "FindingCollector", "read_count_table", "sort_findings"]
+__all__ = ["NUMERIC_ID_LINES_ATTR", "RULES", "SOURCE_COLUMNS_ATTR", "line_list", "pad_id", "FindingCollector", "read_count_table", "sort_findings"]
 
 RULES: tuple[tuple[str, str], ...] = (
     ("file-too-large", "the file is larger than input.max_input_mb (checked before parsing)"),
@@ -40,6 +40,7 @@ RULES: tuple[tuple[str, str], ...] = (
     ("file-encoding", "the bytes are not valid in the declared input.encoding"),
     ("file-unparseable", "the file cannot be parsed as the declared format"),
     ("sheet-missing", "the XLSX workbook has no worksheet named input.sheet"),
+    ("sheet-elsewhere", "the first worksheet lacks the columns another worksheet has (input.sheet)"),
     ("row-field-count", "a CSV row has a different number of fields from the header"),
     ("row-blank", "a blank row inside the table was skipped (info)"),
     ("column-duplicated", "two header cells carry the same column name"),
@@ -47,7 +48,9 @@ RULES: tuple[tuple[str, str], ...] = (
     ("column-optional-missing", "an optional mapped column (name, sites) is absent (warning)"),
     ("week-columns-ambiguous", "the column map names no usable week column, or several"),
     ("id-missing", "a district id cell is empty"),
-    ("id-numeric", "a district id is stored as a number instead of text"),
+    ("id-numeric", "a district id stored as a number is not a whole number (error)"),
+    ("id-whitespace-stripped", "ids had surrounding spaces, removed (info, one per file)"),
+    ("id-zero-padded", "ids were padded with zeros to input.id_zero_pad digits (info)"),
     ("cell-missing", "a required count cell is empty"),
     ("cell-not-number", "a count or rate cell is not a plain number in the declared format"),
     ("count-not-integer", "a count cell holds a fractional number"),
@@ -65,6 +68,11 @@ _XLSX_EXT = {".xlsx"}
 _PARQUET_EXT = {".parquet", ".pq"}
 _DATE = re.compile(r"^\d{4}-\d{2}-\d{2}$")
 _MB = 1_000_000
+_EXACT_FLOAT = 2**53  # every integer below this is exactly representable as a float
+_DIGITS = re.compile(r"^-?\d+$")
+
+NUMERIC_ID_LINES_ATTR = "numeric_id_lines"
+"""Key in ``CountTable.frame.attrs``: lines whose id cell was stored as a whole number (read as text)."""
 
 
 @dataclasses.dataclass(frozen=True)
@@ -203,8 +211,12 @@ def read_count_table(
     Lines are 1-based with the header as line 1, as a text editor shows them.
     For XLSX they are worksheet row numbers; for Parquet, row index + 2 (the
     line the row would have in a CSV export). Numeric id cells (XLSX numbers,
-    Parquet integer columns) are errors rather than being converted, because
-    a number has already lost any leading zero.
+    Parquet numeric columns) holding whole numbers are read as their digits
+    and their lines recorded in ``frame.attrs["numeric_id_lines"]``, so that
+    the boundary check can tell a lost leading zero (``id-leading-zeros``)
+    from a match; any other number is an ``id-numeric`` error. With
+    ``settings.id_zero_pad = K``, all-digit ids shorter than K digits are
+    left-padded with zeros (one ``id-zero-padded`` note).
     """
     path = Path(path)
     out = FindingCollector(path.name)
@@ -453,7 +465,7 @@ def _number_text(value: float | int, decimal: str) -> str:
         return str(value)
     if isinstance(value, int):
         return str(value)
-    if float(value).is_integer():
+    if float(value).is_integer() and abs(value) < _EXACT_FLOAT:
         return str(int(value))
     return repr(float(value)).replace(".", decimal)
 
@@ -483,6 +495,24 @@ def _read_xlsx(data: bytes, settings: InputSettings, out: FindingCollector) -> _
             )
             return None
         sheet = book[settings.sheet] if settings.sheet is not None else book.worksheets[0]
+        if settings.sheet is None and len(book.worksheets) > 1:
+            cmap = settings.columns
+            wanted = [_nfc(c).strip() for c in (cmap.district_id, cmap.ili_visits, cmap.total_visits)]
+            if not set(wanted) <= set(_sheet_header(sheet)):
+                other = next(
+                    (ws.title for ws in book.worksheets[1:] if set(wanted) <= set(_sheet_header(ws))),
+                    None,
+                )
+                if other is not None:
+                    out.error(
+                        "sheet-elsewhere",
+                        f"the first worksheet {sheet.title!r} lacks the configured columns "
+                        f"({', '.join(map(repr, wanted))}) but worksheet {other!r} has them; set "
+                        f"input.sheet = {other!r} to read it (sitrep reads the first worksheet "
+                        "unless input.sheet names another)",
+                        value=other,
+                    )
+                    return None
         id_name = _nfc(settings.columns.district_id)
         header: list[str] | None = None
         id_pos: int | None = None
@@ -533,6 +563,14 @@ def _read_xlsx(data: bytes, settings: InputSettings, out: FindingCollector) -> _
     return raw
 
 
+def _sheet_header(sheet: Any) -> list[str]:
+    """The first non-empty row of a worksheet, as stripped NFC text."""
+    for values in sheet.iter_rows(values_only=True):
+        if any(v is not None and str(v).strip() for v in values):
+            return [_nfc(str(v)).strip() for v in values if v is not None]
+    return []
+
+
 def _read_parquet(data: bytes, settings: InputSettings, out: FindingCollector) -> _Raw | None:
     import pyarrow as pa
     import pyarrow.compute as pc
@@ -550,7 +588,7 @@ def _read_parquet(data: bytes, settings: InputSettings, out: FindingCollector) -
         )
         return None
     header = list(table.column_names)
-    columns: list[np.ndarray] = []
+    columns: list[_Col] = []
     numeric: set[int] = set()
     for i, name in enumerate(header):
         col = table.column(name)
@@ -736,8 +774,8 @@ def _type_table(
         blank &= empty_u[col.codes] if len(col.uniques) else True
     if blank.any():
         keep = ~blank
-        last_kept = np.flatnonzero(keep).max() if keep.any() else -1
-        for i in np.flatnonzero(blank):
+        last_kept = int(np.flatnonzero(keep).max()) if keep.any() else -1
+        for i in np.flatnonzero(blank).tolist():
             if i < last_kept:
                 out.add(
                     Severity.INFO,
@@ -769,35 +807,15 @@ def _type_table(
         return names[pos]
 
     # ---- district ids
+    numeric_id_lines = _numeric_id_lines(raw, pos_id)
     strip = settings.strip_id_whitespace
     id_codes, id_parsed, _ = _apply_unique(
         raw.columns[pos_id], lambda t: _nfc(t.strip() if strip else t)
     )
     id_u = np.array(id_parsed, dtype=object)
-    if pos_id in raw.numeric_columns:
-        out.error(
-            "id-numeric",
-            f"expected district ids stored as text, got a numeric column {col_name(pos_id)!r}; "
-            "numbers lose leading zeros ('001' becomes 1). Store the id column as text "
-            "(a string column) and export again",
-            column=col_name(pos_id),
-        )
-    mask = raw.numeric_id_cells.get(pos_id)
-    if mask is not None:
-        for i in np.flatnonzero(mask):
-            ident = str(id_u[id_codes[i]])
-            out.error(
-                "id-numeric",
-                f"expected the district id as text, got the number {ident}; a number cannot "
-                "keep leading zeros. Format the id column as Text in the spreadsheet and "
-                "re-enter the ids (e.g. '001')",
-                line=int(lines[i]),
-                column=col_name(pos_id),
-                district_id=ident,
-                value=ident,
-            )
+    id_u = _ids_as_read(raw, pos_id, id_codes, id_u, col_name(pos_id), settings, out)
     empty_ids = np.flatnonzero(np.array([not u.strip() for u in id_parsed], dtype=bool)[id_codes])
-    for i in empty_ids:
+    for i in empty_ids.tolist():
         out.error(
             "id-missing",
             "expected a district id, got an empty cell; fill in the id or delete the row",
@@ -894,7 +912,9 @@ def _type_table(
         rate = values / 10.0 if cmap.rate_scale == "per_1000" else values
 
     # ---- weeks
-    week_codes, categories = _type_weeks(raw, spec, pos_week, names, system, id_at, out)
+    week_codes, categories = _type_weeks(
+        raw, spec, pos_week, names, system, id_at, out, settings.date_format
+    )
 
     if out.has_errors or week_codes is None:
         return None
@@ -935,7 +955,98 @@ def _type_table(
         frame["rate_percent"] = rate[order]
         source_columns["rate_percent"] = col_name(pos_rate)
     frame.attrs[SOURCE_COLUMNS_ATTR] = source_columns
+    frame.attrs[NUMERIC_ID_LINES_ATTR] = numeric_id_lines
     return frame
+
+
+def line_list(lines: Sequence[int], limit: int = 20) -> str:
+    """``2, 5, 9`` or ``2, 5, 9, ... and 40 more`` (for messages)."""
+    shown = ", ".join(str(x) for x in lines[:limit])
+    return shown + (f" and {len(lines) - limit} more" if len(lines) > limit else "")
+
+
+def pad_id(ident: str, width: int | None) -> str:
+    """``ident`` left-padded with zeros to ``width`` digits when it is all digits and shorter."""
+    if width and ident.isascii() and ident.isdigit() and len(ident) < width:
+        return ident.zfill(width)
+    return ident
+
+
+def _numeric_id_lines(raw: _Raw, pos_id: int) -> tuple[int, ...]:
+    """Lines whose id cell was stored as a number (XLSX cell or Parquet numeric column)."""
+    if pos_id in raw.numeric_columns:
+        mask = raw.columns[pos_id].uniques[raw.columns[pos_id].codes] != ""
+    else:
+        mask = raw.numeric_id_cells.get(pos_id, np.zeros(len(raw.lines), dtype=bool))
+    return tuple(int(x) for x in raw.lines[mask])
+
+
+def _ids_as_read(
+    raw: _Raw,
+    pos_id: int,
+    id_codes: np.ndarray,
+    id_u: np.ndarray,
+    column: str,
+    settings: InputSettings,
+    out: FindingCollector,
+) -> np.ndarray:
+    """Check numeric id cells, report stripped whitespace, pad ids; return the id uniques.
+
+    A number that is a whole number is read as its digits (the boundary check
+    then says whether it matched); any other number (4101.5, 1e+20) is an error.
+    """
+    col = raw.columns[pos_id]
+    numeric = set(_numeric_id_lines(raw, pos_id))
+    if numeric:
+        for i in np.flatnonzero(np.isin(raw.lines, list(numeric))).tolist():
+            text = col.text(i).strip()
+            if text and not _DIGITS.match(text):
+                out.error(
+                    "id-numeric",
+                    f"expected a district id, got the number {text}, which is not a whole "
+                    "number; an id read from it could be wrong. Format the id column as Text "
+                    "in the spreadsheet and enter the ids as they are in the boundary file",
+                    line=int(raw.lines[i]),
+                    column=column,
+                    district_id=text,
+                    value=text,
+                )
+    if settings.strip_id_whitespace:
+        changed_u = np.array(
+            [_nfc(str(u)) != str(p) and str(p) != "" for u, p in zip(col.uniques, id_u, strict=True)], dtype=bool
+        )
+        rows = np.flatnonzero(changed_u[id_codes]) if len(changed_u) else np.zeros(0, np.int64)
+        if len(rows):
+            lines = sorted(int(raw.lines[i]) for i in rows)
+            out.add(
+                Severity.INFO,
+                "id-whitespace-stripped",
+                f"{len(lines)} district id{'s' if len(lines) != 1 else ''} had spaces around "
+                f"them, removed before matching (input.strip_id_whitespace), on line"
+                f"{'s' if len(lines) != 1 else ''} {line_list(lines)}",
+                line=lines[0],
+                column=column,
+                value=str(len(lines)),
+            )
+    width = settings.id_zero_pad
+    if width:
+        padded = np.array([pad_id(str(u), width) for u in id_u], dtype=object)
+        changed = np.flatnonzero(padded != id_u)
+        if len(changed):
+            rows = np.flatnonzero(np.isin(id_codes, changed))
+            example = f"{id_u[changed[0]]} -> {padded[changed[0]]}"
+            out.add(
+                Severity.INFO,
+                "id-zero-padded",
+                f"{len(changed)} district id{'s' if len(changed) != 1 else ''} on {len(rows)} "
+                f"line{'s' if len(rows) != 1 else ''} were padded with leading zeros to "
+                f"{width} digits (input.id_zero_pad = {width}; e.g. {example})",
+                line=int(raw.lines[rows].min()),
+                column=column,
+                value=str(len(changed)),
+            )
+            return padded
+    return id_u
 
 
 def _type_weeks(
@@ -946,6 +1057,7 @@ def _type_weeks(
     system: WeekSystem,
     id_at: Callable[[int], str | None],
     out: FindingCollector,
+    date_format: str | None = None,
 ) -> tuple[np.ndarray | None, list[EpiWeek]]:
     """Parse the week cells; return codes into a list of distinct EpiWeeks."""
     kind = spec[0]
@@ -1002,12 +1114,26 @@ def _type_weeks(
 
     def parse_date(t: str) -> EpiWeek | tuple[str, str]:
         t = t.strip()
-        if not _DATE.match(t):
-            return ("week-invalid", f"expected an ISO date YYYY-MM-DD, got {t!r}")
-        try:
-            day = dt.date.fromisoformat(t)
-        except ValueError as exc:
-            return ("week-invalid", f"expected a valid date, got {t!r} ({exc})")
+        if _DATE.match(t):
+            try:
+                day = dt.date.fromisoformat(t)
+            except ValueError as exc:
+                return ("week-invalid", f"expected a valid date, got {t!r} ({exc})")
+        elif date_format:
+            try:
+                day = dt.datetime.strptime(t, date_format).date()
+            except ValueError:
+                return (
+                    "week-invalid",
+                    f"expected a date written as input.date_format = {date_format!r} (or ISO "
+                    f"YYYY-MM-DD), got {t!r}; check the declared format against the file",
+                )
+        else:
+            return (
+                "week-invalid",
+                f"expected an ISO date YYYY-MM-DD, got {t!r}; if the file writes dates another "
+                "way, declare it with input.date_format (e.g. '%m/%d/%Y' for 10/07/2023)",
+            )
         want = first_day if kind == "start" else last_day
         if day.weekday() != want:
             return "week-date-weekday", (
@@ -1032,7 +1158,7 @@ def _type_weeks(
                     f"{message} ({sys_name} system, weeks.system); "
                     "give the week as declared in the column map"
                 )
-            for i in np.flatnonzero(codes == u):
+            for i in np.flatnonzero(codes == u).tolist():
                 out.error(
                     rule,
                     message,

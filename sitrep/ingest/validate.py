@@ -13,14 +13,17 @@ import datetime as dt
 import difflib
 import re
 import unicodedata
+import warnings
 from collections.abc import Sequence
 
 import numpy as np
 import pandas as pd
 
 from sitrep.config import ValidationSettings
-from sitrep.ingest.read import SOURCE_COLUMNS_ATTR, FindingCollector
-from sitrep.model import CountTable, Districts, Severity, ValidationReport
+from sitrep.ingest.geometry import NUMERIC_IDS_ATTR
+from sitrep.ingest.read import NUMERIC_ID_LINES_ATTR, SOURCE_COLUMNS_ATTR, FindingCollector
+from sitrep.ingest.read import line_list as _line_list
+from sitrep.model import CountTable, Districts, Finding, Severity, ValidationReport
 from sitrep.weeks import EpiWeek, season_of
 
 __all__ = ["RULES", "validate_against_prior", "validate_table"]
@@ -32,6 +35,11 @@ RULES: tuple[tuple[str, str], ...] = (
     ("count-ili-exceeds-total", "ILI visits exceed total visits (error)"),
     ("count-zero-total", "total visits are 0 while ILI visits are not (error)"),
     ("id-not-in-boundaries", "a table district id is not in the boundary file (error, one per id)"),
+    (
+        "id-leading-zeros",
+        "a table id matches a boundary id only with leading zeros (error; see input.id_zero_pad)",
+    ),
+    ("id-numeric-as-text", "ids stored as whole numbers were read as text (info, one per file)"),
     ("week-mixed", "a file declared as one week holds several weeks (error)"),
     ("week-future", "a week starts after today's date (error)"),
     ("week-gap", "weeks are missing inside a season of a season-to-date extract (warning)"),
@@ -41,7 +49,12 @@ RULES: tuple[tuple[str, str], ...] = (
     ),
     ("district-missing-latest", "a boundary district has no row in the latest week (warning)"),
     ("district-name-differs", "the table's district name differs from the boundary name (info)"),
-    ("value-spike", "the latest ILI% is far outside the district's previous 8 weeks (warning)"),
+    (
+        "value-spike",
+        "the latest ILI% is far from the district's previous weeks after the jurisdiction's "
+        "movement, and unlike the other districts' changes (warning)",
+    ),
+    ("district-no-visits", "a district has 0 visits in the latest week, e.g. a closed site (warning)"),
     (
         "week-system-differs",
         "this week's and last week's tables use different week systems (error)",
@@ -86,7 +99,7 @@ class _Arrays:
     def col(self, internal: str) -> str:
         return self.columns.get(internal, internal)
 
-    def line(self, i: int) -> int | None:
+    def line(self, i: int | np.integer) -> int | None:
         value = int(self.lines[i])
         return value if value > 0 else None
 
@@ -162,6 +175,8 @@ def validate_table(
     today: dt.date | None = None,
     season_start_week: int = 40,
     latest_week_rules: bool = True,
+    prior: CountTable | None = None,
+    weekly_inferred: bool = False,
 ) -> ValidationReport:
     """Check the values of one count table (validation stage 2).
 
@@ -192,14 +207,34 @@ def validate_table(
     * ``district-name-differs`` (info): the table's name for a district, after
       NFC normalisation, case folding and collapsing whitespace, differs from
       the boundary name.
-    * ``value-spike`` (warning): for each district in the latest week, with
-      ``x`` its ILI% (100 * ili / total) and ``m``, ``MAD`` the median and the
-      (unscaled) median absolute deviation of its ILI% over the previous 8
-      weeks (weeks with total > 0 only; at least ``spike_min_weeks`` of them),
-      flag when ``|x - m| / max(MAD, spike_mad_floor_pp, SE) >
-      settings.spike_robust_z``, SE being the binomial standard error (in
-      percentage points) of a proportion equal to the median at this week's
-      visits, so that small districts' one-visit jumps are not flagged.
+    * ``id-leading-zeros`` (error, with ``districts``): an all-digit id not in
+      the boundaries that matches a boundary id once leading zeros are added
+      (or, when the boundary file stores its ids as numbers, removed); the
+      message names ``input.id_zero_pad`` with the width that would match.
+    * ``id-numeric-as-text`` (info, with ``districts``): one note per file
+      whose id cells were stored as whole numbers (XLSX, Parquet, a
+      Shapefile's numeric field), saying how many of them matched.
+    * ``district-no-visits`` (warning): a district with 0 total and 0 ILI
+      visits in the latest week; the message says whether its reporting
+      sites were 0 (a closed site), above 0, or not supplied.
+    * ``value-spike`` (warning): for each district in the latest week with
+      ``x`` its ILI% (100 * ili / total): its reference ``ref`` is the median
+      of its ILI% over the previous 8 weeks when at least ``spike_min_weeks``
+      of them have data (``MAD`` their unscaled median absolute deviation),
+      else its latest previous week (``MAD`` = 0), taken from this table or,
+      for weeks it does not hold, from ``prior``. The jurisdiction's movement
+      ``g`` is, without the district itself and among districts with data in
+      both weeks, the pooled ILI% now over the pooled ILI% in each previous
+      week (the median over the district's weeks, or the one week). The
+      value is flagged when both hold: ``|x - g*ref| / max(g*MAD,
+      spike_mad_floor_pp, SE) > spike_robust_z`` (SE the binomial standard
+      error at ``g*ref`` and this week's visits, so that small districts'
+      one-visit jumps are not flagged), and, when at least 5 districts are
+      assessed, the robust z of its log deviation ``log((x+f)/(g*ref+f))``
+      (``f`` the floor) among all assessed districts, ``|d - median| /
+      max(1.4826*MAD, 0.1)``, also exceeds ``spike_robust_z``. A week in which
+      every district rises is the jurisdiction's movement, not many faults;
+      a ten-fold jump in one district stands out on both counts.
 
     Parameters
     ----------
@@ -219,8 +254,14 @@ def validate_table(
         First week of the season (``weeks.season_start_week``).
     latest_week_rules : bool, optional
         Run the rules about the latest week (``district-missing-latest``,
-        ``value-spike``). Pass False for the history file, whose last week is
-        not the report week.
+        ``district-no-visits``, ``value-spike``). Pass False for the history
+        file, whose last week is not the report week.
+    prior : CountTable or None, optional
+        Last week's table as received: the value-spike rule takes the weeks
+        this table lacks from it (a one-week extract has no past weeks).
+    weekly_inferred : bool, optional
+        ``weekly_file`` was inferred from a one-week prior file rather than
+        declared (the week-mixed message says which).
 
     Returns
     -------
@@ -229,10 +270,11 @@ def validate_table(
 
     Notes
     -----
-    The MAD floor keeps a district whose previous 8 weeks were all equal
-    (often all zero) from being flagged for any change at all: with the
-    defaults a change must exceed 0.5 percentage points. Both the floor and
-    the minimum of 5 weeks are common practice, not published values.
+    The MAD floor keeps a district whose previous weeks were all equal
+    (often all zero) from being flagged for any change at all. The floor,
+    the minimum of 5 weeks, the minimum of 5 districts and the 0.1 floor of
+    the log spread are common practice, not published values; 1.4826 makes
+    the MAD a consistent estimate of a normal standard deviation.
     """
     a = _arrays(table)
     out = FindingCollector(a.file)
@@ -321,12 +363,48 @@ def validate_table(
         boundary_ids = [str(x) for x in districts.ids]
         known = set(boundary_ids)
         first_line = _first_index(a.id_codes, len(a.id_uniques), a.lines)
+        numeric_lines = set(table.frame.attrs.get(NUMERIC_ID_LINES_ATTR, ()))
+        b_info = districts.frame.attrs.get(NUMERIC_IDS_ATTR) or {}
+        b_numeric = bool(b_info.get("numeric"))
+        by_digits: dict[str, str] = {}
+        for b in boundary_ids:
+            if b.isascii() and b.isdigit() and b.lstrip("0"):
+                by_digits.setdefault(b.lstrip("0"), b)
         for code, ident in enumerate(a.id_uniques):
             if ident in known:
                 continue
             rows = np.flatnonzero(a.id_codes == code)
             line_list = ", ".join(str(x) for x in sorted(a.lines[rows])[:10])
             more = f" and {len(rows) - 10} more" if len(rows) > 10 else ""
+            line = int(a.lines[first_line[code]]) or None
+            padded = (
+                by_digits.get(ident.lstrip("0"))
+                if ident.isascii() and ident.isdigit() and ident.lstrip("0")
+                else None
+            )
+            if padded is not None and (
+                len(padded) > len(ident) or (b_numeric and len(ident) > len(padded))
+            ):
+                width = max(len(padded), len(ident))
+                if len(ident) > len(padded):
+                    stored = "the boundary file stores its ids as numbers"
+                elif numeric_lines.intersection(a.lines[rows].tolist()):
+                    stored = "the table stored it as a number"
+                else:
+                    stored = "a spreadsheet probably stored it as a number"
+                out.add(
+                    Severity.ERROR,
+                    "id-leading-zeros",
+                    f"district id {ident!r} (lines {line_list}{more}) matches the boundary id "
+                    f"{padded!r} only with leading zeros ({stored} and the zeros were lost). "
+                    f"Set input.id_zero_pad = {width} to pad all-digit ids to {width} digits in "
+                    "the table and the boundaries, or store the ids as text with their zeros",
+                    line=line,
+                    column=c_id,
+                    district_id=ident,
+                    value=ident,
+                )
+                continue
             near = _near_matches(ident, boundary_ids)
             hint = (
                 f"; near matches in the boundaries: {', '.join(repr(m) for m in near)}"
@@ -339,10 +417,49 @@ def validate_table(
                 f"expected every district id to be in the boundary file, got {ident!r} "
                 f"(lines {line_list}{more}){hint}. Correct the id in the table (keep ids as text "
                 "with their leading zeros) or add the district to the boundaries",
-                line=int(a.lines[first_line[code]]) or None,
+                line=line,
                 column=c_id,
                 district_id=ident,
                 value=ident,
+            )
+        if numeric_lines:
+            rows = np.flatnonzero(np.isin(a.lines, list(numeric_lines)))
+            numeric_ids = sorted({str(a.ids[i]) for i in rows})
+            matched = sum(1 for i in numeric_ids if i in known)
+            outcome = (
+                f"all {matched} matched the boundaries"
+                if matched == len(numeric_ids)
+                else f"{matched} of {len(numeric_ids)} matched the boundaries (the others are "
+                "listed as errors)"
+            )
+            out.add(
+                Severity.INFO,
+                "id-numeric-as-text",
+                f"district ids in column {c_id!r} were stored as numbers on {len(rows)} "
+                f"line{'s' if len(rows) != 1 else ''}; read as text (e.g. {numeric_ids[0]}), "
+                f"{outcome}",
+                line=int(a.lines[rows].min()),
+                column=c_id,
+                value=str(len(numeric_ids)),
+            )
+        if b_numeric and latest_week_rules:
+            in_table = set(a.id_uniques)
+            matched = sum(1 for i in boundary_ids if i in in_table)
+            outcome = (
+                f"all {matched} match the table"
+                if matched == len(boundary_ids)
+                else f"{matched} of {len(boundary_ids)} have rows in the table"
+            )
+            out.items.append(
+                Finding(
+                    Severity.INFO,
+                    "id-numeric-as-text",
+                    f"district ids in the boundary field {b_info.get('column')!r} are stored as "
+                    f"numbers; read as text (e.g. {boundary_ids[0]}), {outcome}",
+                    file=districts.source.path.name,
+                    column=str(b_info.get("column")),
+                    value=str(len(boundary_ids)),
+                )
             )
         present = set(np.asarray(a.ids[in_latest], dtype=object).tolist())
         for ident in boundary_ids if latest_week_rules else ():
@@ -364,13 +481,21 @@ def validate_table(
     if weekly_file and len(a.weeks) > 1:
         counts = np.bincount(a.week_codes, minlength=len(a.weeks))
         listing = ", ".join(f"{w} ({counts[k]} rows)" for k, w in enumerate(a.weeks))
+        declared = (
+            "because last week's file (input.prior_table) held one week, this file is taken as "
+            "one week too; set input.weekly_file = false if it is a season-to-date extract"
+            if weekly_inferred
+            else "input.weekly_file = true declares one week; send one file per week or set "
+            "input.weekly_file = false for a season-to-date extract"
+        )
         for k, w in enumerate(a.weeks[:-1]):
             i = first_of_week[k]
+            week_lines = sorted(int(x) for x in a.lines[a.week_codes == k])
             out.add(
                 Severity.ERROR,
                 "week-mixed",
-                f"expected one week in a file declared as a weekly file, got {listing}; send "
-                "one file per week or declare the file a season-to-date extract",
+                f"expected one week in this file, got {listing}; the rows of {w} are on "
+                f"line{'s' if len(week_lines) != 1 else ''} {_line_list(week_lines)} ({declared})",
                 line=a.line(i),
                 column=c_week,
                 district_id=str(a.ids[i]),
@@ -439,8 +564,33 @@ def validate_table(
             )
 
     if latest_week_rules:
-        _spikes(a, settings, out)
+        _closed(a, out)
+        _spikes(a, settings, out, _arrays(prior) if prior is not None else None)
     return out.report()
+
+
+def _closed(a: _Arrays, out: FindingCollector) -> None:
+    """Warn for each district with no visits at all in the latest week (a closed site?)."""
+    last = len(a.weeks) - 1
+    for i in np.flatnonzero((a.week_codes == last) & (a.total == 0) & (a.ili == 0)).tolist():
+        sites = a.sites[i]
+        if np.isfinite(sites) and sites == 0:
+            why = "and 0 reporting sites: its sites were probably closed or did not report"
+        elif np.isfinite(sites):
+            why = f"although {_fmt(sites)} site{'s' if sites != 1 else ''} reported"
+        else:
+            why = "(no reporting-sites column to tell a closed site from a quiet week)"
+        out.add(
+            Severity.WARNING,
+            "district-no-visits",
+            f"district {a.ids[i]} has 0 visits in {a.weeks[last]} {why}; it is left out of the "
+            "statistics (no ILI% can be computed), not shown as 0% ILI. Ask the district whether "
+            "data are missing",
+            line=a.line(i),
+            column=a.col("total_visits"),
+            district_id=str(a.ids[i]),
+            value="0",
+        )
 
 
 def _first_index(codes: np.ndarray, n: int, lines: np.ndarray) -> np.ndarray:
@@ -503,48 +653,116 @@ def _squash_keep(text: str) -> list[str]:
     return unicodedata.normalize("NFC", text).casefold().split()
 
 
-def _spikes(a: _Arrays, settings: ValidationSettings, out: FindingCollector) -> None:
+_SPIKE_LOG_SPREAD_FLOOR = 0.1
+"""Smallest spread of the districts' log deviations in the value-spike rule (common practice)."""
+_SPIKE_MIN_DISTRICTS = 5
+"""Fewest districts for comparing one district's deviation with the others' (common practice)."""
+
+
+def _grid(a: _Arrays, last: int, ids: dict[str, int]) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """ILI visits, total visits and row index per district x week ``last - 8 .. last``."""
+    ili = np.full((len(ids), 9), np.nan)
+    tot = np.full((len(ids), 9), np.nan)
+    row = np.full((len(ids), 9), -1, dtype=np.int64)
+    keep = np.flatnonzero((a.ordinal >= last - 8) & (a.ordinal <= last))
+    keep = keep[[str(a.ids[i]) in ids for i in keep]] if len(keep) else keep
+    d = np.array([ids[str(a.ids[i])] for i in keep], dtype=np.int64)
+    w = a.ordinal[keep] - (last - 8)
+    ili[d, w], tot[d, w], row[d, w] = a.ili[keep], a.total[keep], keep
+    return ili, tot, row
+
+
+def _spikes(
+    a: _Arrays, settings: ValidationSettings, out: FindingCollector, prior: _Arrays | None = None
+) -> None:
     z_limit = settings.spike_robust_z
     min_weeks = int(settings.spike_min_weeks)
     floor = float(settings.spike_mad_floor_pp)
     last = int(a.ordinal.max())
-    window = (a.ordinal >= last - 8) & (a.ordinal <= last) & (a.total > 0)
-    if not window.any():
+    ids = {ident: k for k, ident in enumerate(a.id_uniques)}
+    ili, tot, row = _grid(a, last, ids)
+    if prior is not None and len(prior.ids):
+        # weeks this table does not hold come from last week's table as received
+        p_ili, p_tot, _ = _grid(prior, last, ids)
+        gap = np.isnan(tot)
+        gap[:, 8] = False
+        ili[gap], tot[gap] = p_ili[gap], p_tot[gap]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        valid = (tot > 0) & (ili >= 0) & (ili <= tot)  # other rows are errors of other rules
+        pct = np.where(valid, 100.0 * ili / tot, np.nan)
+    now_ok = np.isfinite(pct[:, 8])
+    past = pct[:, :8]
+    n_past = np.isfinite(past).sum(axis=1)
+    long = n_past >= min_weeks
+    # reference: the median of the previous 8 weeks, or (too few of them) the latest previous week
+    last_seen = np.where(np.isfinite(past), np.arange(8), -1).max(axis=1)
+    usable = now_ok & (long | (last_seen >= 0))
+    if not usable.any():
         return
-    rows = np.flatnonzero(window)
-    n_ids = len(a.id_uniques)
-    grid = np.full((n_ids, 9), np.nan)
-    grid[a.id_codes[rows], a.ordinal[rows] - (last - 8)] = 100.0 * a.ili[rows] / a.total[rows]
-    row_at_latest = np.full(n_ids, -1, dtype=np.int64)
-    latest_rows = rows[a.ordinal[rows] == last]
-    row_at_latest[a.id_codes[latest_rows]] = latest_rows
-    past = grid[:, :8]
-    enough = (np.isfinite(past).sum(axis=1) >= min_weeks) & np.isfinite(grid[:, 8])
-    if not enough.any():
-        return
-    sub = past[enough]
-    med = np.nanmedian(sub, axis=1)
-    mad = np.nanmedian(np.abs(sub - med[:, None]), axis=1)
-    x = grid[enough, 8]
-    # Binomial noise of a proportion near the median at this week's visits: a small
-    # district's ILI% jumps by whole points from one visit, which is not a data fault.
-    n_now = a.total[row_at_latest[np.flatnonzero(enough)]].astype(float)
-    p_med = np.clip(med / 100.0, 0.005, 0.995)
-    binomial_se = 100.0 * np.sqrt(p_med * (1.0 - p_med) / np.maximum(n_now, 1.0))
-    z = np.abs(x - med) / np.maximum(np.maximum(mad, floor), binomial_se)
-    for j in np.flatnonzero(z > z_limit):
-        code = np.flatnonzero(enough)[j]
-        i = int(row_at_latest[code])
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)  # all-NaN rows stay NaN on purpose
+        med = np.where(long, np.nanmedian(past, axis=1), np.nan)
+        mad = np.where(long, np.nanmedian(np.abs(past - med[:, None]), axis=1), 0.0)
+    one_week = np.take_along_axis(past, np.maximum(last_seen, 0)[:, None], axis=1)[:, 0]
+    ref = np.where(long, med, one_week)
+
+    # The jurisdiction's own movement, without the district itself: for each past week, the
+    # pooled ILI% now over the pooled ILI% then, among districts reporting in both weeks.
+    both = np.isfinite(pct) & np.isfinite(pct[:, [8]])
+    ili0, tot0 = np.where(both, ili, 0.0), np.where(both, tot, 0.0)
+    now_ili, now_tot = np.where(both, ili[:, [8]], 0.0), np.where(both, tot[:, [8]], 0.0)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        p_now = (now_ili.sum(axis=0) - now_ili) / (now_tot.sum(axis=0) - now_tot)
+        p_then = (ili0.sum(axis=0) - ili0) / (tot0.sum(axis=0) - tot0)
+        ratio = np.where(both & (p_then > 0), p_now / p_then, np.nan)[:, :8]
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)  # all-NaN rows stay NaN on purpose
+        g_long = np.nanmedian(np.where(np.isfinite(past), ratio, np.nan), axis=1)
+    g_one = np.take_along_axis(ratio, np.maximum(last_seen, 0)[:, None], axis=1)[:, 0]
+    g = np.where(long, g_long, g_one)
+    g = np.where(np.isfinite(g) & (g > 0), g, 1.0)
+
+    x = pct[:, 8]
+    expected = ref * g
+    n_now = np.maximum(np.nan_to_num(tot[:, 8], nan=1.0), 1.0)
+    p_exp = np.clip(expected / 100.0, 0.005, 0.995)
+    # Binomial noise at this week's visits: a small district's ILI% jumps by whole points
+    # from one visit, which is not a data fault.
+    binomial_se = 100.0 * np.sqrt(p_exp * (1.0 - p_exp) / n_now)
+    spread = np.maximum(np.maximum(mad * g, floor), binomial_se)
+    with np.errstate(invalid="ignore"):
+        own_z = np.abs(x - expected) / spread
+    # ... and against the other districts: robust z of the log deviation from the movement
+    with np.errstate(divide="ignore", invalid="ignore"):
+        dev = np.log((x + floor) / (expected + floor))
+    cross_z = np.full(len(x), np.inf)
+    if usable.sum() >= _SPIKE_MIN_DISTRICTS:
+        centre = float(np.median(dev[usable]))
+        scale = max(1.4826 * float(np.median(np.abs(dev[usable] - centre))), _SPIKE_LOG_SPREAD_FLOOR)
+        cross_z = np.abs(dev - centre) / scale
+    flagged = usable & (own_z > z_limit) & (cross_z > z_limit)
+    for d in np.flatnonzero(flagged).tolist():
+        i = int(row[d, 8])
+        if long[d]:
+            basis = f"its previous 8 weeks (median {med[d]:.2f}%, MAD {mad[d]:.2f} pp)"
+        else:
+            basis = f"its previous week ({one_week[d]:.2f}% in {a.weeks[-1] - (8 - int(last_seen[d]))})"
+        others = (
+            f"; {cross_z[d]:.1f} against the other districts' changes"
+            if np.isfinite(cross_z[d])
+            else ""
+        )
         out.add(
             Severity.WARNING,
             "value-spike",
-            f"district {a.ids[i]} has ILI {x[j]:.2f}% in {a.weeks[a.week_codes[i]]}, far from its "
-            f"previous 8 weeks (median {med[j]:.2f}%, MAD {mad[j]:.2f} pp; robust z {z[j]:.1f} > "
-            f"{z_limit:g}); check the counts with the district before publishing",
+            f"district {a.ids[i]} has ILI {x[d]:.2f}% in {a.weeks[a.week_codes[i]]}, far from "
+            f"{basis} even after the other districts' movement this week (x{g[d]:.2f}, "
+            f"expected {expected[d]:.2f}%): robust z {own_z[d]:.1f} > {z_limit:g}{others}; "
+            "check the counts with the district before publishing",
             line=a.line(i),
             column=a.col("ili_visits"),
             district_id=str(a.ids[i]),
-            value=f"{x[j]:.2f}",
+            value=f"{x[d]:.2f}",
         )
 
 
@@ -692,7 +910,7 @@ def validate_against_prior(
 
 def _keys(a: _Arrays, vocab: dict[str, int]) -> np.ndarray:
     id_num = np.array([vocab.setdefault(u, len(vocab)) for u in a.id_uniques], dtype=np.int64)
-    return id_num[a.id_codes] * 1_000_000 + a.ordinal
+    return np.asarray(id_num[a.id_codes] * 1_000_000 + a.ordinal)
 
 
 def _lookup(keys_from: np.ndarray, keys_to: np.ndarray) -> np.ndarray:
@@ -700,7 +918,7 @@ def _lookup(keys_from: np.ndarray, keys_to: np.ndarray) -> np.ndarray:
     rows = pd.Series(np.arange(len(keys_from)), index=keys_from)
     rows = rows[~rows.index.duplicated(keep="first")]
     pos = rows.index.get_indexer(keys_to)
-    return np.where(pos >= 0, rows.to_numpy()[np.maximum(pos, 0)], -1)
+    return np.asarray(np.where(pos >= 0, rows.to_numpy()[np.maximum(pos, 0)], -1))
 
 
 def _revisions(cur: _Arrays, pri: _Arrays, settings: ValidationSettings, out: FindingCollector) -> None:

@@ -16,7 +16,7 @@ from typing import Any
 from sitrep.analysis.seasonal_context import SeasonalContext
 from sitrep.analysis.week import WeekAnalysis
 from sitrep.config import Config
-from sitrep.model import InputFile, Severity, ValidationReport
+from sitrep.model import InputFile, ValidationReport
 from sitrep.render.report_figures import FigureItem, ReportFigures
 from sitrep.render.wording import formats as fm
 from sitrep.render.wording import methods as mt
@@ -156,12 +156,15 @@ def build_context(
     version: int | None = None,
     build_time: str = "",
     digits: int | None = None,
+    projection: str = "",
 ) -> ReportContext:
     """Assemble the report context from the week's results (pure).
 
     ``version`` is the archive version of this report (None when it is not
     archived: ``report.version`` is shown then); ``digits`` prints district
-    values and cut points (default: :func:`context_digits`).
+    values and cut points (default: :func:`context_digits`). ``projection`` is
+    the sentence saying in which CRS the maps are drawn and distances measured
+    (``Districts.projection``); it becomes a methods entry.
     """
     week = analysis.week
     prior = analysis.prior_week
@@ -321,14 +324,13 @@ def build_context(
     top += [r for r in district_rows if r.district_id in named_ids and r not in top]
     quality = tuple(
         QualityItem(
-            severity=f.severity.value,
-            rule=f.rule,
-            location=f.location(),
-            district=names.get(f.district_id or "", f.district_id or ""),
-            message=f.message.replace(" -> ", " → "),
+            severity=g.severity.value,
+            rule=g.rule,
+            location=g.location(),
+            district=_group_districts(g.districts(), names),
+            message=g.message(span=False, full_list="validation.json").replace(" -> ", " → "),
         )
-        for f in validation.findings
-        if f.severity is Severity.WARNING
+        for g in ValidationReport(validation.warnings).grouped()
     )
     table_file = next((f for f in inputs if f.role == "table"), None)
     data_as_of = nv.data_as_of(
@@ -381,7 +383,7 @@ def build_context(
         season_label=seasonal.season_label,
         season_start_week=config.weeks.season_start_week,
     )
-    methods = mt.methods_sections(settings)
+    methods = mt.methods_sections(settings) + ((("Maps and distances", projection),) if projection else ())
     previous = [v for v in seasonal.previous_visits if v > 0]
     usual = float(sorted(previous)[len(previous) // 2]) if len(previous) >= 3 else None
     cautions = mt.cautions(
@@ -459,6 +461,13 @@ def context_digits(analysis: WeekAnalysis, seasonal: SeasonalContext) -> int:
     cuts = tuple(analysis.terciles.cuts) if analysis.terciles.cuts else ()
     others = [x for x in (seasonal.epidemic_threshold, seasonal.baseline) if x is not None]
     return fm.class_digits(values, cuts, others=others)
+
+
+def _group_districts(ids: tuple[str, ...], names: dict[str, str]) -> str:
+    """District column of a grouped finding: the name, or how many districts."""
+    if len(ids) == 1:
+        return names.get(ids[0], ids[0])
+    return f"{len(ids)} districts" if ids else ""
 
 
 def _quality_highlights(validation: ValidationReport) -> list[str]:

@@ -32,7 +32,8 @@ import matplotlib
 from matplotlib import font_manager
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
-from matplotlib.layout_engine import PlaceHolderLayoutEngine
+from matplotlib.layout_engine import ConstrainedLayoutEngine, PlaceHolderLayoutEngine
+from matplotlib.typing import RcKeyType
 
 __all__ = [
     "CM",
@@ -63,7 +64,7 @@ RASTER_DPI = 300
 
 _FONT_FILES = ("DejaVuSans.ttf", "DejaVuSans-Bold.ttf")
 
-FIGURE_RC: dict[str, Any] = {
+FIGURE_RC: dict[RcKeyType, Any] = {
     "font.family": [FONT_FAMILY],
     "font.size": 8.0,
     "axes.titlesize": 9.0,
@@ -148,7 +149,9 @@ def new_figure(
         layout=None if layout == "none" else layout,
     )
     if layout != "none":
-        fig.get_layout_engine().set(w_pad=0.08, h_pad=0.08)  # type: ignore[union-attr]
+        engine = fig.get_layout_engine()
+        if isinstance(engine, ConstrainedLayoutEngine):
+            engine.set(w_pad=0.08, h_pad=0.08)
     FigureCanvasAgg(fig)
     return fig
 

@@ -826,11 +826,13 @@ def comparison_map(
                 f"{name}: expected {geometry.n_districts} values (one per district), "
                 f"got shape {arr.shape}"
             )
-        shown = arr[~np.isnan(arr)]
-        if shown.size and (not np.all(np.isfinite(shown)) or shown.min() < 0 or shown.max() > 100):
+        present = arr[~np.isnan(arr)]
+        if present.size and (
+            not np.all(np.isfinite(present)) or present.min() < 0 or present.max() > 100
+        ):
             raise RenderError(
                 f"{name}: ILI% must lie in 0-100 or be NaN (not shown), got values from "
-                f"{shown.min()} to {shown.max()}"
+                f"{present.min()} to {present.max()}"
             )
         weeks.append(arr)
     finite = np.concatenate([w[~np.isnan(w)] for w in weeks])
@@ -872,7 +874,7 @@ def comparison_map(
             ScalarMappable(norm=norm, cmap=cmap), cax=bar_ax, orientation="horizontal"
         )
         colourbar.set_label(LEGEND_LABELS["comparison"]["scale"], fontsize=7.5)
-        colourbar.outline.set_edgecolor(COLOURS["slate"])  # type: ignore[operator]
+        colourbar.outline.set_edgecolor(COLOURS["slate"])
         key_ax = fig.add_subplot(grid[1, 1])
         key_ax.set_axis_off()
         key_ax.legend(

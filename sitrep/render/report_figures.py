@@ -80,7 +80,7 @@ def draw_report_figures(
     table = analysis.table
     order = {d: i for i, d in enumerate(districts.frame["district_id"])}
     index = [order[d] for d in table["district_id"]]
-    geoms = districts.frame.geometry.iloc[index].reset_index(drop=True)
+    geoms = districts.map_frame.geometry.iloc[index].reset_index(drop=True)
     names = list(table["district_name"])
     week = analysis.week
     items = []

@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Iterable, Sequence
+from typing import TypeGuard
 
 __all__ = [
     "MINUS",
@@ -34,7 +35,7 @@ NOT_AVAILABLE = "not available"
 MINUS = "\u2212"
 
 
-def finite(x: object) -> bool:
+def finite(x: object) -> TypeGuard[float]:
     """True for a real, finite number (bool excluded)."""
     return isinstance(x, (int, float)) and not isinstance(x, bool) and math.isfinite(x)
 
@@ -53,7 +54,7 @@ def fmt_pct(x: float | None, digits: int = 1) -> str:
     >>> fmt_pct(2.345), fmt_pct(float("nan")), fmt_pct(2.767, 2)
     ('2.3%', 'not available', '2.77%')
     """
-    return f"{_fixed(x, digits)}%" if finite(x) else NOT_AVAILABLE  # type: ignore[arg-type]
+    return f"{_fixed(x, digits)}%" if finite(x) else NOT_AVAILABLE
 
 
 def fmt_num(x: float | None, digits: int = 1) -> str:
@@ -62,7 +63,7 @@ def fmt_num(x: float | None, digits: int = 1) -> str:
     >>> fmt_num(-0.42)
     '−0.4'
     """
-    return _fixed(x, digits) if finite(x) else NOT_AVAILABLE  # type: ignore[arg-type]
+    return _fixed(x, digits) if finite(x) else NOT_AVAILABLE
 
 
 def fmt_signed(x: float | None, digits: int = 1) -> str:
@@ -83,7 +84,7 @@ def fmt_pp(x: float | None, digits: int = 1, *, signed: bool = True) -> str:
     """
     if not finite(x):
         return NOT_AVAILABLE
-    text = fmt_signed(x, digits) if signed else _fixed(abs(x), digits)  # type: ignore[arg-type]
+    text = fmt_signed(x, digits) if signed else _fixed(abs(x), digits)
     return f"{text} percentage points"
 
 
@@ -93,7 +94,7 @@ def fmt_count(n: float | None) -> str:
     >>> fmt_count(12345)
     '12,345'
     """
-    return f"{int(n):,}" if finite(n) else NOT_AVAILABLE  # type: ignore[arg-type]
+    return f"{int(n):,}" if finite(n) else NOT_AVAILABLE
 
 
 def fmt_interval(low: float | None, high: float | None, unit: str = "%", digits: int = 1) -> str:
@@ -104,7 +105,7 @@ def fmt_interval(low: float | None, high: float | None, unit: str = "%", digits:
     """
     if not (finite(low) and finite(high)):
         return NOT_AVAILABLE
-    a, b = _fixed(low, digits), _fixed(high, digits)  # type: ignore[arg-type]
+    a, b = _fixed(low, digits), _fixed(high, digits)
     sep = " to " if a.startswith(MINUS) or b.startswith(MINUS) else "–"
     return f"{a}{sep}{b}{unit}"
 

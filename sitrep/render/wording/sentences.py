@@ -94,8 +94,8 @@ def change_verdict(
         return "clear increase"
     if change_class == "decrease":
         return "clear decrease"
-    excludes_zero = finite(low_pp) and finite(high_pp) and (low_pp > 0 or high_pp < 0)  # type: ignore[operator]
-    if finite(p_value) and p_value < alpha and excludes_zero:  # type: ignore[operator]
+    excludes_zero = finite(low_pp) and finite(high_pp) and (low_pp > 0 or high_pp < 0)
+    if finite(p_value) and p_value < alpha and excludes_zero:
         return "small increase" if diff_pp > 0 else "small decrease"
     return "no clear change"
 
@@ -160,7 +160,7 @@ def change_sentence(
     """
     before = f"{fmt_pct(pct_before)} in week {prior_week_number}"
     revised = ""
-    if finite(revised_from) and finite(pct_before) and round(revised_from, 1) != round(pct_before, 1):  # type: ignore[arg-type]
+    if finite(revised_from) and finite(pct_before) and round(revised_from, 1) != round(pct_before, 1):
         revised = f" (revised from {fmt_pct(revised_from)} as late reports arrived)"
     elif finite(pct_before):
         revised = " (as revised this week)"
@@ -217,13 +217,13 @@ def threshold_sentence(
     """
     parts = []
     if finite(epidemic_threshold):
-        side = "at or above" if pct >= epidemic_threshold else "below"  # type: ignore[operator]
+        side = "at or above" if pct >= epidemic_threshold else "below"
         text = f"This is {side} the epidemic threshold of {fmt_pct(epidemic_threshold, digits)}"
         if intensity and side != "below":
             text += f" (intensity: {intensity})"
         parts.append(text)
     if finite(baseline):
-        side = "above" if pct >= baseline else "below"  # type: ignore[operator]
+        side = "above" if pct >= baseline else "below"
         parts.append(f"{side} the seasonal baseline of {fmt_pct(baseline, digits)}")
     if not parts:
         return unavailable_reason or "Seasonal thresholds are not available."
@@ -284,7 +284,7 @@ def is_borderline(value: float | None, threshold: float, *, factor: float = 1.5)
     >>> is_borderline(0.046, 0.05), is_borderline(0.063, 0.05), is_borderline(0.001, 0.05)
     (True, True, False)
     """
-    return finite(value) and threshold / factor <= value <= threshold * factor  # type: ignore[operator]
+    return finite(value) and threshold / factor <= value <= threshold * factor
 
 
 def movement_phrase(

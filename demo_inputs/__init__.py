@@ -1,0 +1,1 @@
+"""The invented demo scenario (tables, boundaries, configuration), shipped as package data."""
