@@ -194,3 +194,13 @@ def test_misaligned_weeks_are_refused() -> None:
         )
     with pytest.raises(AnalysisError, match="must not exceed"):
         week_over_week(np.array([11]), np.array([10]), np.array([1]), np.array([10]))
+
+
+def test_class_follows_the_printed_interval_when_test_and_interval_disagree() -> None:
+    # 4/20 vs 0/20: pooled z = 0.2 / sqrt(0.1 * 0.9 * 0.1) = 2.108, p = 0.0350 [HAND; LIB statsmodels
+    # proportions_ztest], but the Newcombe interval is -0.000509 to 0.4160 [LIB statsmodels
+    # confint_proportions_2indep(method="newcomb")], which includes 0: no class (docs/methods.md section 3).
+    t = _row(4, 20, 0, 20, min_change_pp=0.0)
+    assert t.p_value[0] == pytest.approx(0.035015, abs=1e-6)
+    assert t.low_pp[0] == pytest.approx(-0.0509127, abs=1e-6) and t.high_pp[0] == pytest.approx(41.60174, abs=1e-4)
+    assert t.classes == (ChangeClass.SIMILAR,)

@@ -234,6 +234,20 @@ def test_second_build_of_the_same_week_refuses_then_reissues(demo_build) -> None
     reissued = (again.bundle.path / "report.html").read_text(encoding="utf-8")
     assert "it supersedes version 1. Reason: late reports from two districts" in reissued
     assert (result.bundle.path / "report.pdf").is_file()
+    # the version comes from the archive in every output: header, e-mail, drafts and manifest
+    assert "<th scope=\"row\">Report version</th><td>2</td>" in reissued
+    assert manifest["report_version"] == "2"
+    email = (again.bundle.path / "email.txt").read_text(encoding="utf-8")
+    draft = (again.bundle.path / "draft.md").read_text(encoding="utf-8")
+    assert "report version 2" in email and "Report version 2" in draft
+    assert "**Reissued.** This is version 2" in draft and "&gt;" not in draft
+    import docx
+
+    document = docx.Document(str(again.bundle.path / "draft.docx"))
+    texts = [p.text for p in document.paragraphs]
+    assert any(t.startswith("Reissued. This is version 2") for t in texts)
+    assert any("Report version 2" in t for t in texts)
+    assert "version 2" in document.core_properties.keywords
 
 
 def _tree_hashes(folder: Path) -> dict[str, str]:

@@ -515,3 +515,16 @@ def test_same_week_past_seasons_sorted_and_missing() -> None:
     assert same_week_past_seasons({}, 1) == ()
     with pytest.raises(ValueError, match="season_week must be >= 1 .1-based., got 0"):
         same_week_past_seasons(past, 0)
+
+
+def test_season_window_stops_at_the_configured_week() -> None:
+    from sitrep.analysis.seasonal_context import _window_length
+
+    # a 52-week season starting in week 40: season week k is calendar week 40 + k - 1, wrapping after 52
+    calendar = {k: (40 + k - 2) % 52 + 1 for k in range(1, 53)}
+    assert calendar[1] == 40 and calendar[13] == 52 and calendar[14] == 1
+    assert _window_length(calendar, 40, 20, 52) == 33  # weeks 40..52 (13) and 1..20 (20) [HAND]
+    assert _window_length(calendar, 40, 0, 52) == 52  # 0: the whole season
+    # a 53-week year only shifts the position of week 20 by one
+    calendar53 = {k: (40 + k - 2) % 53 + 1 for k in range(1, 54)}
+    assert _window_length(calendar53, 40, 20, 53) == 34

@@ -310,6 +310,7 @@ def build_context(
         pl.plain_quality(
             revised=any(f.rule.startswith("revision") for f in validation.warnings),
             n_warnings=len(validation.warnings),
+            completeness_drop=completeness_drop,
         ),
     )
 

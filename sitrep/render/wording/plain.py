@@ -90,9 +90,15 @@ def plain_groups(*, high_groups: Sequence[Sequence[str]], name_groups: bool) -> 
     return text
 
 
-def plain_quality(*, revised: bool, n_warnings: int) -> str:
-    """Whether figures moved or were queried."""
+def plain_quality(*, revised: bool, n_warnings: int, completeness_drop: bool = False) -> str:
+    """Whether figures moved, were incomplete or were queried."""
     if not n_warnings:
         return "Our checks found no problems with this week's figures."
     text = "Some figures for earlier weeks were updated as late reports arrived. " if revised else ""
-    return text + "The surveillance team checked the figures it queried before publishing."
+    if completeness_drop:
+        text += (
+            "Fewer visits were reported than usual this week (a fall in reporting completeness), so some "
+            "figures may be lower than the true level. "
+        )
+    flagged = "1 figure" if n_warnings == 1 else f"{n_warnings} figures"
+    return text + f"Our automatic checks flagged {flagged} for review; the full report lists them."

@@ -189,7 +189,10 @@ def change_sentence(
             f"{min_change_pp:g} percentage points this report treats as a meaningful change."
         )
         if verdict == "small decrease" and completeness_drop:
-            text += " Reporting was markedly less complete this week, which may explain part of it."
+            text += (
+                " Reporting was markedly less complete this week, so part of this fall may"
+                " reflect missing reports rather than less illness."
+            )
         return text + (rising if verdict == "small increase" else "")
     return (
         f"There is no clear change from {before}{revised}: the difference of {change} is within "
@@ -419,8 +422,8 @@ def revision_note(*, published: float | None, revised: float | None) -> str:
 
 
 def data_as_of(*, latest_day: str, file_name: str) -> str:
-    """``'counts to 28 November 2026 (extract_2026-W47.csv)'``: the extract's last day with data."""
-    return f"counts to {latest_day} ({file_name})" if file_name else f"counts to {latest_day}"
+    """``'28 November 2026, last day with counts in extract_2026-W47.csv'``."""
+    return f"{latest_day}, last day with counts in {file_name}" if file_name else latest_day
 
 
 def reissue_note(*, version: int, week_number: int, reason: str) -> str:
