@@ -219,7 +219,13 @@ class FindingGroup:
         """
         if self.count == 1:
             return self.first.message
-        what = "cells" if self.first.column and self.lines() else "findings"
+        ids = self.districts()
+        if len(ids) == self.count:
+            what = "districts"  # one finding per district (e.g. per unknown id)
+        elif self.first.column and self.lines():
+            what = "cells"
+        else:
+            what = "findings"
         head = f"{self.count} {what}" + (f", {self.span()}" if span and self.span() else "")
         first = self.members[:shown]
         spots = "; ".join(_spot(f) for f in first)

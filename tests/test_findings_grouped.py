@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import dataclasses
+
 from sitrep.model import Finding, Severity, ValidationReport
 
 
@@ -31,10 +33,15 @@ def test_group_message_gives_count_span_and_first_five_locations() -> None:
     (group,) = ValidationReport(tuple(cell("cell-not-number", k) for k in range(2, 242))).grouped()
     assert group.span() == "lines 2-241"
     text = group.message()
-    assert text.startswith("240 cells, lines 2-241: bad value on 2 [line 2: 2; line 3: 3;")
+    assert text.startswith("240 districts, lines 2-241: bad value on 2 [line 2: 2; line 3: 3;")
     assert "line 6: 6; first 5 shown, all 240 in validation.json" in text and "line 7" not in text
     assert group.location() == "t.csv, lines 2-241, column 'ili_visits'"
     assert len(group.districts()) == 240
+    # a cell-level rule over fewer districts counts cells; one finding per district counts those
+    (per_cell,) = ValidationReport(
+        tuple(dataclasses.replace(cell("r", k), district_id=f"{k % 3}") for k in range(2, 12))
+    ).grouped()
+    assert per_cell.message().startswith("10 cells, lines 2-11:")
     # lines with gaps are given as a range with "to"; a single finding keeps its own message
     (gappy,) = ValidationReport((cell("r", 2), cell("r", 9))).grouped()
     assert gappy.span() == "lines 2 to 9" and gappy.message().endswith("all shown]")
