@@ -201,3 +201,10 @@ def test_cautions_carry_case_definition_coverage_completeness_and_overdispersion
     assert "80% of the median of the previous 8 weeks" in text and "less complete than usual" in text
     assert "overdispersion" in text and "binomial" in text
     assert "not for individual clinical decisions" in text and "small-number suppression" in text
+
+
+def test_global_moran_text_never_prints_p_zero() -> None:
+    text = nv.global_moran_text(available=True, i=0.669, expectation=-1 / 46, p_sim=1 / 10000, n=47, notes=())
+    assert "permutation p < 0.001, over the 47 districts tested" in text and "p = 0.000" not in text
+    assert "p = 0.046" in nv.global_moran_text(available=True, i=0.1, expectation=-0.02, p_sim=0.046, n=9, notes=())
+    assert nv.global_moran_text(available=False, i=math.nan, expectation=0, p_sim=0, n=0, notes=("too few.",)) == "Not computed this week: too few."

@@ -443,9 +443,10 @@ def global_moran_text(*, available: bool, i: float, expectation: float, p_sim: f
     """The global Moran's I line of the methods."""
     if not available or not finite(i):
         return "Not computed this week: " + " ".join(notes)
+    p_text = "p < 0.001" if finite(p_sim) and p_sim < 0.0005 else f"p = {fmt_num(p_sim, 3)}"
     return (
         f"I = {fmt_num(i, 3)} (expected {fmt_num(expectation, 3)} under no spatial autocorrelation), "
-        f"permutation p = {fmt_num(p_sim, 3)}, over the {n} districts tested."
+        f"permutation {p_text}, over the {n} districts tested."
     )
 
 
