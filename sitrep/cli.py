@@ -190,7 +190,8 @@ def _print_findings(report: ValidationReport, stream: object = None) -> None:
         print("no findings: the inputs passed every check", file=out)  # type: ignore[arg-type]
         return
     header = ("severity", "rule", "file:line", "column", "district", "message")
-    groups = report.grouped()
+    order = {"error": 0, "warning": 1, "info": 2}
+    groups = sorted(report.grouped(), key=lambda g: order[g.severity.value])  # errors first
     rows = []
     for g in groups:
         f = g.first

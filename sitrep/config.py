@@ -82,6 +82,9 @@ class InputSettings:
     decimal: Literal[".", ","] = "."
     sheet: str | None = None
     """Worksheet name for XLSX tables (first sheet when unset)."""
+    date_format: str | None = None
+    """How week start/end dates are written when not ISO ``YYYY-MM-DD``, as a
+    :func:`datetime.datetime.strptime` pattern such as ``"%m/%d/%Y"`` (declared, never guessed)."""
     strip_id_whitespace: bool = True
     id_zero_pad: int | None = None
     """Pad all-digit district ids shorter than this many digits with leading zeros (table and
@@ -142,7 +145,7 @@ class AnalysisSettings:
     knn_k: int = 5
     link_islands_k: int = 0
     """When > 0, link each island to its k nearest districts (and say so)."""
-    permutations: int = 999
+    permutations: int = 9999
     seed: int = 12345
     alpha: float = 0.05
     correction: Literal["fdr_bh", "none"] = "fdr_bh"
@@ -159,6 +162,8 @@ class SeasonalSettings:
     mem_delta: float = 2.8
     mem_form: Literal["point", "ci"] = "point"
     mem_max_seasons: int = 10
+    mem_window_end_week: int = 20
+    """Last calendar week of each past season used for the epidemic thresholds (0: the whole season)."""
     onset_weeks: int = 3
     aberration_sd_floor_pp: float = 0.2
 
@@ -174,7 +179,12 @@ class ReportSettings:
     template_dir: Path | None = None
     """Use templates from this folder instead of the packaged ones."""
     version: str = "1"
+    """Shown only for a report that is not archived; an archived report shows its archive version."""
     top_districts_in_pdf: int = 15
+    case_definition: str = ""
+    """The ILI case definition the reporting sites use, quoted in the cautions."""
+    draft_names_groups: bool = False
+    """Name the districts of a high-value group in the communications draft."""
 
 
 @dataclasses.dataclass(frozen=True)
@@ -261,10 +271,15 @@ def load_config(path: str | Path) -> Config:
     return dataclasses.replace(config, source=path.resolve())
 
 
+_WEEK_SOURCES = (("week",), ("year", "week_number"), ("week_start",), ("week_end",))
+"""The ways of giving the week in ``input.columns``; a configuration sets at most one."""
+
+
 def config_from_dict(raw: dict[str, Any], base_dir: Path | None = None) -> Config:
     """Build a :class:`Config` from a parsed TOML mapping (see :func:`load_config`)."""
     raw = dict(raw)
     raw.pop("source", None)
+    _check_week_sources(raw)
     config = _build(Config, raw, "", base_dir or Path.cwd())
     _check_ranges(config)
     return config
@@ -348,6 +363,23 @@ def _coerce(hint: Any, value: Any, key: str, base_dir: Path) -> Any:
     raise ConfigError(f"{key}: unsupported setting type {hint!r}")  # pragma: no cover
 
 
+def _check_week_sources(raw: dict[str, Any]) -> None:
+    """Refuse two week sources set in the file (e.g. ``week`` and ``week_end``), naming both."""
+    section = raw.get("input")
+    columns = section.get("columns") if isinstance(section, dict) else None
+    if not isinstance(columns, dict):
+        return
+    given = [
+        keys for keys in _WEEK_SOURCES if any(columns.get(k) not in (None, "") for k in keys)
+    ]
+    if len(given) > 1:
+        named = [" + ".join(f"input.columns.{k}" for k in keys) for keys in given]
+        raise ConfigError(
+            f"{' and '.join(named)} both give the week; keep exactly one of them (a week label, "
+            "year + week_number, week_start or week_end) and remove the other"
+        )
+
+
 def _reject_control(key: str, value: str) -> None:
     """Refuse CR, LF and NUL in any string: they could inject e-mail headers or paths."""
     bad = [c for c in ("\r", "\n", "\x00") if c in value]
@@ -371,6 +403,10 @@ def _check_ranges(c: Config) -> None:
          c.weeks.season_start_week),
         (c.input.max_input_mb > 0, "input.max_input_mb must be positive", c.input.max_input_mb),
         (c.seasonal.onset_weeks >= 1, "seasonal.onset_weeks must be at least 1", c.seasonal.onset_weeks),
+        (0 <= c.seasonal.mem_window_end_week <= 53
+         and c.seasonal.mem_window_end_week != c.weeks.season_start_week,
+         "seasonal.mem_window_end_week must be 0 (whole season) or a week 1..53 other than "
+         "weeks.season_start_week", c.seasonal.mem_window_end_week),
         (1 <= c.email.port <= 65535, "email.port must be 1..65535", c.email.port),
         (c.email.retries >= 0, "email.retries must not be negative", c.email.retries),
         (c.report.top_districts_in_pdf >= 0, "report.top_districts_in_pdf must not be negative",
@@ -379,6 +415,19 @@ def _check_ranges(c: Config) -> None:
     for ok, message, value in checks:
         if not ok:
             raise ConfigError(f"{message}, got {value!r}")
+    if c.input.date_format is not None:
+        import datetime as dt
+
+        try:
+            probe = dt.date(2026, 11, 28).strftime(c.input.date_format)
+            ok = dt.datetime.strptime(probe, c.input.date_format).date() == dt.date(2026, 11, 28)
+        except ValueError:
+            ok = False
+        if not ok:
+            raise ConfigError(
+                f"input.date_format = {c.input.date_format!r} does not give a full date; use "
+                "strptime codes with day, month and year, e.g. '%m/%d/%Y' or '%d.%m.%Y'"
+            )
     if c.input.id_zero_pad is not None and not 1 <= c.input.id_zero_pad <= 20:
         raise ConfigError(f"input.id_zero_pad must be 1..20 digits, got {c.input.id_zero_pad!r}")
     if len(c.input.delimiter) != 1:

@@ -37,6 +37,7 @@ from sitrep.deliver.archive import (
 from sitrep.deliver.mail import SendOutcome, send_bundle, sent_record_path
 from sitrep.errors import ConfigError, DeliveryError, InputError, ValidationFailed
 from sitrep.model import Finding, Severity, ValidationReport
+from sitrep.render.wording.mail import email_subject_text
 from sitrep.weeks import EpiWeek, WeekSystem
 
 __all__ = [
@@ -101,15 +102,15 @@ def email_subject(
     puts ``subject_prefix`` in front of the subject it is given. Month names
     come from a fixed English table, not from the process locale.
     """
-    span = (
-        f"{_day(week.start, year=week.start.year != week.end.year)} to {_day(week.end, year=True)}"
+    return email_subject_text(
+        jurisdiction=config.report.jurisdiction,
+        week_number=week.week,
+        week_year=week.year,
+        start=week.start,
+        end=week.end,
+        version=version,
+        supersedes=supersedes,
     )
-    subject = (
-        f"{config.report.jurisdiction}: ILI situation report, week {week.week} {week.year} ({span})"
-    )
-    if supersedes:
-        subject += f", version {version}, supersedes {supersedes}"
-    return subject
 
 
 # --------------------------------------------------------------------------- bundle state

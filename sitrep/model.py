@@ -205,16 +205,32 @@ class FindingGroup:
         """Distinct district ids of the group, in order of appearance."""
         return tuple(dict.fromkeys(f.district_id for f in self.members if f.district_id))
 
-    def message(self, shown: int = SHOWN_PER_GROUP) -> str:
-        """One sentence for the whole group: the count, the span and the first locations."""
+    def message(
+        self,
+        shown: int = SHOWN_PER_GROUP,
+        *,
+        span: bool = True,
+        full_list: str = "validation.json (and check --json)",
+    ) -> str:
+        """One sentence for the whole group: the count, the span and the first locations.
+
+        ``span=False`` leaves the line span out (when the location column shows it);
+        ``full_list`` names where every finding of the group is listed.
+        """
         if self.count == 1:
             return self.first.message
-        what = "cells" if self.first.column and self.lines() else "findings"
-        head = f"{self.count} {what}" + (f", {self.span()}" if self.span() else "")
+        ids = self.districts()
+        if len(ids) == self.count:
+            what = "districts"  # one finding per district (e.g. per unknown id)
+        elif self.first.column and self.lines():
+            what = "cells"
+        else:
+            what = "findings"
+        head = f"{self.count} {what}" + (f", {self.span()}" if span and self.span() else "")
         first = self.members[:shown]
         spots = "; ".join(_spot(f) for f in first)
         tail = (
-            f"first {len(first)} shown, all {self.count} in validation.json (and check --json)"
+            f"first {len(first)} shown, all {self.count} in {full_list}"
             if self.count > len(first)
             else "all shown"
         )

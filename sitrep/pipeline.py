@@ -351,12 +351,13 @@ def _build(
         from sitrep.deliver.archive import (
             check_outputs,
             next_version,
+            read_source_date_epoch,
             reproducible_env,
             source_date_epoch,
             write_bundle,
             write_outputs,
         )
-        from sitrep.render.context import build_context
+        from sitrep.render.context import build_context, context_digits
         from sitrep.render.draft import render_docx, render_email_body, render_markdown
         from sitrep.render.html import asset_dir, render_html
         from sitrep.render.report_figures import draw_report_figures
@@ -389,12 +390,19 @@ def _build(
         )
     versions = library_versions()
     reissue = None
-    if reissue_reason is not None and archive and config.output.archive is not None:
+    version: int | None = None
+    if archive and config.output.archive is not None:
         version = next_version(config.output.archive, config.report.jurisdiction, str(week))
-        reissue = (version, reissue_reason)
+        if reissue_reason is not None:
+            reissue = (version, reissue_reason)
     with reproducible_env(source_date_epoch(week.end)):
+        epoch = read_source_date_epoch()
+        build_time = (
+            dt.datetime.fromtimestamp(epoch, dt.UTC).isoformat().replace("+00:00", "Z") if epoch is not None else ""
+        )
+        digits = context_digits(analysis, seasonal)
         with _timed(timings, "maps"):
-            figures = draw_report_figures(analysis, seasonal, inputs.districts)
+            figures = draw_report_figures(analysis, seasonal, inputs.districts, digits=digits)
         with _timed(timings, "html"):
             context = build_context(
                 analysis=analysis,
@@ -405,6 +413,9 @@ def _build(
                 versions=versions,
                 inputs=inputs.files,
                 reissue=reissue,
+                version=version,
+                build_time=build_time,
+                digits=digits,
                 projection=inputs.districts.projection,
             )
             html = render_html(context, config.report.template_dir)
@@ -438,6 +449,7 @@ def _build(
         for name, data in figures.files().items():
             files[f"figures/{name}"] = data
         manifest = _manifest(config, week, inputs, versions, reissue_reason)
+        manifest["report_version"] = context.report_version
         manifest["outputs"] = {
             name: {"sha256": hashlib.sha256(data).hexdigest(), "size_bytes": len(data)}
             for name, data in sorted(files.items())

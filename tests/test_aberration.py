@@ -1,6 +1,6 @@
 """Tests of sitrep.analysis.aberration: C1, C2, C3 on weekly series.
 
-Check values: METHODS.md 8.1 worked example [HAND] (weekly counts y0..y12 =
+Check values: docs/methods.md 8.1 worked example [HAND] (weekly counts y0..y12 =
 20 22 19 21 23 20 22 24 21 35 40 38 30), to 4 decimals; others derived by hand in the
 comment beside each assertion.
 """
@@ -23,19 +23,19 @@ TOL4 = 5e-5  # values quoted to 4 dp
 
 def test_methods_81_worked_example() -> None:
     r = aberration_series(Y81, sd_floor=1.0)  # counts -> floor of 1 count (does not bind)
-    # METHODS 8.1 [HAND]: t=9 C1 7.8984, C2 9.8995; t=10 C1 3.1594, C2 10.7252;
+    # docs/methods.md 8.1 [HAND]: t=9 C1 7.8984, C2 9.8995; t=10 C1 3.1594, C2 10.7252;
     # t=11 C1 1.4821, C2 9.6444, C3 27.2691; t=12 C1 0.1639, C2 1.2194, C3 18.5890.
     np.testing.assert_allclose(r.c1[9:], [7.8984, 3.1594, 1.4821, 0.1639], atol=TOL4)
     np.testing.assert_allclose(r.c2[9:], [9.8995, 10.7252, 9.6444, 1.2194], atol=TOL4)
     np.testing.assert_allclose(r.c3[11:], [27.2691, 18.5890], atol=TOL4)
-    # METHODS 8.1: C3(11) = 8.8995 + 9.7252 + 8.6444 = sum of (C2 - 1) over t = 9..11
+    # docs/methods.md 8.1: C3(11) = 8.8995 + 9.7252 + 8.6444 = sum of (C2 - 1) over t = 9..11
     assert r.c3[11] == pytest.approx(np.sum(r.c2[9:12] - 1), abs=1e-12)
-    # METHODS 8.1 intermediate values at t=9: C1 baseline mean 21.428571, SD 1.718249
+    # docs/methods.md 8.1 intermediate values at t=9: C1 baseline mean 21.428571, SD 1.718249
     base = Y81[2:9]
     assert base.mean() == pytest.approx(21.428571, abs=1e-6)
     assert base.std(ddof=1) == pytest.approx(1.718249, abs=1e-6)
     assert r.c1[9] == pytest.approx((35 - base.mean()) / base.std(ddof=1), abs=1e-12)
-    # alarms (METHODS 8.1 asterisks): C1 t=9,10; C2 t=9,10,11; C3 t=11,12
+    # alarms (docs/methods.md 8.1 asterisks): C1 t=9,10; C2 t=9,10,11; C3 t=11,12
     assert np.flatnonzero(r.c1_alarm).tolist() == [9, 10]
     assert np.flatnonzero(r.c2_alarm).tolist() == [9, 10, 11]
     assert np.flatnonzero(r.c3_alarm).tolist() == [11, 12]
@@ -86,7 +86,7 @@ def test_vectorised_over_districts_matches_single_series() -> None:
     wk = aberration_this_week(y, sd_floor=1.0)
     assert isinstance(wk, AberrationWeek)
     assert wk.week_index == 12
-    # district 0 = METHODS 8.1 at t=12: C1 0.1639, C2 1.2194, C3 18.5890 [HAND]
+    # district 0 = docs/methods.md 8.1 at t=12: C1 0.1639, C2 1.2194, C3 18.5890 [HAND]
     assert wk.c1.values[0] == pytest.approx(0.1639, abs=TOL4)
     assert wk.c2.values[0] == pytest.approx(1.2194, abs=TOL4)
     assert wk.c3.values[0] == pytest.approx(18.5890, abs=TOL4)

@@ -11,7 +11,7 @@ from sitrep.analysis.change import ChangeTable, week_over_week
 from sitrep.errors import AnalysisError
 from sitrep.model import ChangeClass
 
-# METHODS.md section 3 table [LIB statsmodels 0.15.0 unless marked]:
+# docs/methods.md section 3 table [LIB statsmodels 0.15.0 unless marked]:
 # (x1, n1, x0, n0, diff pp, relative %, pooled-z p, Newcombe 95% CI of the difference).
 METHODS_ROWS = [
     (58, 1250, 37, 1200, 1.5567, 50.4865, 0.046031, (0.000196, 0.031132)),
@@ -47,14 +47,14 @@ def test_newcombe_1998b_examples(
     t = _row(x1, n1, x0, n0)
     assert float(t.diff_pp[0]) == pytest.approx(diff, abs=1e-12)
     assert 100 * float(t.relative[0]) == pytest.approx(rel, abs=1e-9)
-    assert round(float(t.p_value[0]), 6) == p  # pooled z p [LIB statsmodels, METHODS.md section 3]
+    assert round(float(t.p_value[0]), 6) == p  # pooled z p [LIB statsmodels, docs/methods.md section 3]
     assert (round(float(t.low_pp[0]) / 100, 4), round(float(t.high_pp[0]) / 100, 4)) == ci
 
 
 @pytest.mark.parametrize(
     ("x1", "n1", "x0", "n0", "p"),
     # Poisson score p, Gu et al. 2008 as statsmodels test_poisson_2indep(method="score")
-    # [LIB statsmodels 0.15.0, METHODS.md section 3 last column].
+    # [LIB statsmodels 0.15.0, docs/methods.md section 3 last column].
     [
         (58, 1250, 37, 1200, 0.050460),
         (2300, 98000, 2100, 100000, 0.000228),
@@ -96,7 +96,7 @@ def test_vectorised_equals_statsmodels_oracles() -> None:
 
 
 def test_test_choice_changes_the_class_near_alpha() -> None:
-    # METHODS.md section 3 row 1: pooled z p = 0.046031 < 0.05 but Poisson score p = 0.050460
+    # docs/methods.md section 3 row 1: pooled z p = 0.046031 < 0.05 but Poisson score p = 0.050460
     # [LIB statsmodels]; with |diff| = 1.56 pp >= 0.5 pp the classes differ.
     assert _row(58, 1250, 37, 1200).classes == (ChangeClass.INCREASE,)
     assert _row(58, 1250, 37, 1200, method="poisson-score").classes == (ChangeClass.SIMILAR,)
@@ -104,7 +104,7 @@ def test_test_choice_changes_the_class_near_alpha() -> None:
 
 def test_significant_but_small_change_is_similar() -> None:
     # Row 2 (national-size denominators): p = 0.000194 but diff 0.2469 pp < 0.5 pp [LIB]; the
-    # minimum-change rule [CP, METHODS.md section 3] keeps it "similar".
+    # minimum-change rule [CP, docs/methods.md section 3] keeps it "similar".
     assert _row(2300, 98000, 2100, 100000).classes == (ChangeClass.SIMILAR,)
     assert _row(2300, 98000, 2100, 100000, min_change_pp=0.2).classes == (ChangeClass.INCREASE,)
     assert _row(2100, 100000, 2300, 98000, min_change_pp=0.2).classes == (ChangeClass.DECREASE,)
@@ -194,3 +194,13 @@ def test_misaligned_weeks_are_refused() -> None:
         )
     with pytest.raises(AnalysisError, match="must not exceed"):
         week_over_week(np.array([11]), np.array([10]), np.array([1]), np.array([10]))
+
+
+def test_class_follows_the_printed_interval_when_test_and_interval_disagree() -> None:
+    # 4/20 vs 0/20: pooled z = 0.2 / sqrt(0.1 * 0.9 * 0.1) = 2.108, p = 0.0350 [HAND; LIB statsmodels
+    # proportions_ztest], but the Newcombe interval is -0.000509 to 0.4160 [LIB statsmodels
+    # confint_proportions_2indep(method="newcomb")], which includes 0: no class (docs/methods.md section 3).
+    t = _row(4, 20, 0, 20, min_change_pp=0.0)
+    assert t.p_value[0] == pytest.approx(0.035015, abs=1e-6)
+    assert t.low_pp[0] == pytest.approx(-0.0509127, abs=1e-6) and t.high_pp[0] == pytest.approx(41.60174, abs=1e-4)
+    assert t.classes == (ChangeClass.SIMILAR,)

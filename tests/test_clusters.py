@@ -1,6 +1,6 @@
 """Tests of sitrep.analysis.clusters (global and local Moran's I).
 
-Check values come from METHODS.md §5 with their provenance tags:
+Check values come from docs/methods.md §5 with their provenance tags:
 [PUB] published, [LIB esda 2.9.0] recomputed with the pinned reference
 library (they pin library behaviour, e.g. seeded p-values), [HAND] closed
 form. Data: libpysal's bundled ``columbus`` (Anselin 1988, Table 12.1) and
@@ -68,7 +68,7 @@ def test_columbus_crime_global_moran(
     g = global_moran(columbus["CRIME"].to_numpy(), columbus_graph, permutations=999, seed=12345)
     assert g.available and g.n == 49
     # I = 0.500189 [LIB esda 2.9.0]; R spdep moran.test prints "Moran I statistic 0.500188557"
-    # [PUB, secondary: public R notebooks, METHODS.md §5.2].
+    # [PUB, secondary: public R notebooks, docs/methods.md §5.2].
     assert g.i == pytest.approx(0.500188557, abs=1e-9)
     assert g.expectation == pytest.approx(-1 / 48, abs=1e-12)  # E[I] = -1/(n-1) [HAND]
     assert g.variance_norm == pytest.approx(0.008563, abs=5e-7)  # [LIB esda 2.9.0]
@@ -86,8 +86,8 @@ def test_columbus_crime_global_moran(
 @pytest.mark.parametrize(
     ("column", "i", "z_norm"),
     [
-        ("HOVAL", 0.180093, 2.171269),  # [LIB esda 2.9.0], METHODS.md §5.2
-        ("INC", 0.415629, 4.716535),  # [LIB esda 2.9.0], METHODS.md §5.2
+        ("HOVAL", 0.180093, 2.171269),  # [LIB esda 2.9.0], docs/methods.md §5.2
+        ("INC", 0.415629, 4.716535),  # [LIB esda 2.9.0], docs/methods.md §5.2
     ],
 )
 def test_columbus_other_variables(
@@ -103,13 +103,13 @@ def test_sids2_sidr74_queen_and_rook() -> None:
     df["district_id"] = df["FIPS"].astype(str)
     y = df["SIDR74"].to_numpy()
     queen = global_moran(y, build_graph(df, kind="queen"))
-    # Queen from the shapefile: I = 0.230910, z_norm 3.695663 [LIB esda 2.9.0, METHODS.md §5.4].
+    # Queen from the shapefile: I = 0.230910, z_norm 3.695663 [LIB esda 2.9.0, docs/methods.md §5.4].
     assert queen.i == pytest.approx(0.230910, abs=5e-7)
     assert queen.z_norm == pytest.approx(3.695663, abs=5e-7)
     assert queen.expectation == pytest.approx(-0.010101, abs=5e-7)
     rook = global_moran(y, build_graph(df, kind="rook"))
     # esda's own test suite: I = 0.24772519320480135, one-sided p_norm 5.7916539e-05, computed
-    # with sids2.gal, which is rook contiguity [PUB: esda tests; METHODS.md §5.4].
+    # with sids2.gal, which is rook contiguity [PUB: esda tests; docs/methods.md §5.4].
     assert rook.i == pytest.approx(0.24772519320480135, abs=1e-12)
     assert rook.p_norm / 2 == pytest.approx(5.7916539e-05, rel=1e-6)
 
@@ -138,7 +138,7 @@ def test_global_moran_not_available_for_constant_or_too_few(columbus_graph: Dist
 
 
 # POLYID: (esda Is, quadrant, p_sim) for CRIME, queen-r, R = 999, seed = 12345
-# [LIB esda 2.9.0, identical with and without numba; METHODS.md §5.3 table].
+# [LIB esda 2.9.0, identical with and without numba; docs/methods.md §5.3 table].
 COLUMBUS_LOCAL = {
     1: (0.721781, 3, 0.194),
     2: (0.517986, 3, 0.167),
@@ -179,7 +179,7 @@ def test_columbus_local_table_rows(columbus_local) -> None:  # type: ignore[no-u
 def test_columbus_local_totals_and_bh(columbus_local) -> None:  # type: ignore[no-untyped-def]
     r = columbus_local
     # Quadrants HH 21, LH 5, LL 20, HL 3; 20 sites with p < 0.05: HH 11, LH 1, LL 7, HL 1
-    # [LIB esda 2.9.0, METHODS.md §5.3]. No p equals 0.05 exactly, so <= and < agree here.
+    # [LIB esda 2.9.0, docs/methods.md §5.3]. No p equals 0.05 exactly, so <= and < agree here.
     assert np.bincount(r.quadrants, minlength=5).tolist() == [0, 21, 5, 20, 3]
     assert int(r.significant.sum()) == 20
     counts = r.counts()
@@ -189,7 +189,7 @@ def test_columbus_local_totals_and_bh(columbus_local) -> None:  # type: ignore[n
         counts[ClusterLabel.LOW_LOW],
         counts[ClusterLabel.HIGH_LOW],
     ) == (11, 1, 7, 1)
-    # BH at q = 0.05 keeps 9 (largest rejected p 0.008) [LIB, METHODS.md §5.6], and equals
+    # BH at q = 0.05 keeps 9 (largest rejected p 0.008) [LIB, docs/methods.md §5.6], and equals
     # statsmodels multipletests(method="fdr_bh") on the same p-values (reference library).
     reject, adjusted, _, _ = multipletests(r.p_values, alpha=0.05, method="fdr_bh")
     np.testing.assert_allclose(r.q_values, adjusted, rtol=1e-12)
@@ -199,7 +199,7 @@ def test_columbus_local_totals_and_bh(columbus_local) -> None:  # type: ignore[n
 
 def test_columbus_bh_labels(columbus: gpd.GeoDataFrame, columbus_graph: DistrictGraph) -> None:
     r = local_clusters(columbus["CRIME"].to_numpy(), columbus_graph, correction="fdr_bh", q=0.05)
-    assert int(r.significant.sum()) == 9  # [LIB, METHODS.md §5.6]
+    assert int(r.significant.sum()) == 9  # [LIB, docs/methods.md §5.6]
     assert max(r.p_values[r.significant]) == pytest.approx(0.008)
     sig_labels = {lab for lab, s in zip(r.labels, r.significant, strict=True) if s}
     assert sig_labels <= set(QUADRANT_LABELS.values())
@@ -236,7 +236,7 @@ def test_sum_of_local_i_identity(
     columbus_local, columbus: gpd.GeoDataFrame, columbus_graph: DistrictGraph
 ) -> None:  # type: ignore[no-untyped-def]
     # esda scaling: sum Is = ((n-1)/n) S0 I; row-standardised, no islands => S0 = n, so
-    # sum Is = (n-1) I = 24.009051 (METHODS.md §5.3 [LIB]); Anselin's scaling would give n*I.
+    # sum Is = (n-1) I = 24.009051 (docs/methods.md §5.3 [LIB]); Anselin's scaling would give n*I.
     g = global_moran(columbus["CRIME"].to_numpy(), columbus_graph)
     n = 49
     s0 = columbus_graph.graph.sparse.sum()
@@ -244,7 +244,7 @@ def test_sum_of_local_i_identity(
     assert columbus_local.local_i.sum() == pytest.approx((n - 1) / n * s0 * g.i, rel=1e-12)
     assert columbus_local.local_i.sum() == pytest.approx(24.009051, abs=5e-7)
     # R spdep localmoran (Anselin's m2) for POLYID 1 is 0.736818 = esda Is * n/(n-1)
-    # [PUB, secondary notebook output; METHODS.md §5.3].
+    # [PUB, secondary notebook output; docs/methods.md §5.3].
     assert columbus_local.local_i[0] * n / (n - 1) == pytest.approx(0.736818, abs=5e-7)
 
 
@@ -256,7 +256,7 @@ def test_same_seed_same_result_other_seed_differs(
     b = local_clusters(y, columbus_graph, seed=12345)
     c = local_clusters(y, columbus_graph, seed=54321)
     np.testing.assert_array_equal(a.p_values, b.p_values)
-    # Another seed changed 48 of 49 p-values in METHODS.md §5.7 [LIB]; at least one must move.
+    # Another seed changed 48 of 49 p-values in docs/methods.md §5.7 [LIB]; at least one must move.
     assert not np.array_equal(a.p_values, c.p_values)
     np.testing.assert_array_equal(a.local_i, c.local_i)  # Is and quadrants are seed-free
 
@@ -292,7 +292,7 @@ def test_island_on_5x5_lattice_is_never_tested() -> None:
 
 def test_esda_alone_would_flag_the_island() -> None:
     # Documents the pitfall guarded against above: esda 2.9.0 gives an island p = 1/(R+1)
-    # (METHODS.md §5.5, RELIABILITY.md [E4]); if this ever changes, revisit clusters.py.
+    # (docs/methods.md §5.5, RELIABILITY.md [E4]); if this ever changes, revisit clusters.py.
     import warnings
 
     nb = _lattice_neighbours(5, 5)
@@ -309,7 +309,7 @@ def test_esda_alone_would_flag_the_island() -> None:
 def test_value_exactly_at_the_mean_is_not_flagged() -> None:
     # y = 1..25 on a 5x5 rook lattice: the mean is 13 exactly [HAND], so the centre cell has
     # z = 0 and I_i = 0 under every permutation. esda 2.9.0 folds that to p = 1/(R+1) = 0.001
-    # (same mechanism as the island, METHODS.md §5.5); we must report p = 1, not a cluster.
+    # (same mechanism as the island, docs/methods.md §5.5); we must report p = 1, not a cluster.
     dg = graph_from_neighbours(_lattice_neighbours(5, 5))
     y = np.arange(1.0, 26.0)
     r = local_clusters(y, dg, permutations=999, seed=12345, correction="none")

@@ -35,7 +35,7 @@ def sitrep_imports(path: Path) -> set[str]:
 @pytest.mark.parametrize("stage", ORDER)
 def test_stage_imports_only_leftwards(stage: str) -> None:
     allowed = set(ORDER[: ORDER.index(stage) + 1] + SHARED)
-    for path in sorted((PACKAGE / stage).glob("*.py")):
+    for path in sorted((PACKAGE / stage).rglob("*.py")):  # subpackages such as render/wording too
         bad = sitrep_imports(path) - allowed
         assert not bad, f"{path.name} in {stage} imports {sorted(bad)}"
 

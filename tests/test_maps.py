@@ -336,9 +336,9 @@ def test_change_map_counts_classes_in_legend(geoms):
     fig = maps.change_map(geoms, classes)
     texts = legend_texts(fig)
     assert texts == [
-        "Increase (4)",
-        "Similar (no clear change) (3)",
-        "Decrease (4)",
+        "Clear increase (4)",
+        "No clear or only a small change (3)",
+        "Clear decrease (4)",
         "Not assessable (3)",
     ]
     (colls,) = district_collections(fig)

@@ -10,7 +10,7 @@ from sitrep.analysis.multitest import benjamini_hochberg, bonferroni
 from sitrep.errors import AnalysisError
 
 # Benjamini & Hochberg 1995 (JRSS B 57:289-300) section 4 worked example, 15 p-values
-# [PUB-memory, reproduced; METHODS.md section 5.6].
+# [PUB-memory, reproduced; docs/methods.md section 5.6].
 BH1995 = np.array(
     [
         0.0001,
@@ -53,7 +53,7 @@ def test_bh_1995_example_shuffled_equals_statsmodels() -> None:
 
 
 def test_tie_at_the_boundary_uses_less_or_equal() -> None:
-    # [LIB, METHODS.md 5.6]: statsmodels BH rejects 2 because 0.025 <= 2 * 0.05 / 4;
+    # [LIB, docs/methods.md 5.6]: statsmodels BH rejects 2 because 0.025 <= 2 * 0.05 / 4;
     # esda.fdr's strict "<" gives the cut-off 0.0125 and rejects none.
     p = np.array([0.02, 0.025, 0.9, 0.95])
     reject, adjusted = benjamini_hochberg(p, 0.05)

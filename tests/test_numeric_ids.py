@@ -96,7 +96,7 @@ def test_codes_that_lost_a_leading_zero_need_the_padding_setting(tmp_path: Path)
     lines = [line for line in out.splitlines() if "id-leading-zeros" in line]
     # one grouped line names how many ids and the setting; the per-id findings are in --json
     assert len(lines) == 1, out
-    assert "13 cells" in lines[0] and "input.id_zero_pad = 5" in lines[0]
+    assert "13 districts, lines 2-14" in lines[0] and "input.id_zero_pad = 5" in lines[0]
     code, out, _ = run_cli(["check", "--config", str(week.config_path), "--today", str(TODAY),
                             "--json"])
     doc = json.loads(out)

@@ -21,7 +21,7 @@ def _one(x: int, n: int, method: str, confidence: float = 0.95) -> tuple[float, 
 
 
 # Newcombe 1998a (Stat Med 17:857-872) Table II, 95% intervals to 4 dp [PUB-memory, reproduced
-# by statsmodels 0.15.0 as recorded in METHODS.md section 2].
+# by statsmodels 0.15.0 as recorded in docs/methods.md section 2].
 NEWCOMBE_1998A = [
     # x, n, Wilson (low, high), Clopper-Pearson (low, high)
     (81, 263, (0.2553, 0.3662), (0.2527, 0.3676)),
@@ -39,7 +39,7 @@ def test_newcombe_1998a_table_ii(
     assert np.round(_one(x, n, "clopper-pearson"), 4).tolist() == list(cp)
 
 
-# statsmodels 0.15.0 proportion_confint, 6 dp [LIB, METHODS.md section 2 "More" list].
+# statsmodels 0.15.0 proportion_confint, 6 dp [LIB, docs/methods.md section 2 "More" list].
 STATSMODELS_6DP = [
     (20, 20, "wilson", (0.838875, 1.0)),
     (20, 20, "clopper-pearson", (0.831567, 1.0)),
@@ -67,7 +67,7 @@ def test_statsmodels_six_decimals(
 
 
 def test_closed_forms_at_the_edges() -> None:
-    # Closed forms [HAND, METHODS.md section 2]: Wilson upper at x = 0 is z^2/(n + z^2);
+    # Closed forms [HAND, docs/methods.md section 2]: Wilson upper at x = 0 is z^2/(n + z^2);
     # Clopper-Pearson upper at x = 0 is 1 - (alpha/2)^(1/n), lower at x = n is (alpha/2)^(1/n).
     n = 37
     assert _one(0, n, "wilson") == (0.0, pytest.approx(Z95**2 / (n + Z95**2), rel=1e-12))

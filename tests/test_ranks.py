@@ -1,4 +1,4 @@
-"""Tercile ranks: METHODS.md section 4 table, pandas/mapclassify as oracles, edge cases."""
+"""Tercile ranks: docs/methods.md section 4 table, pandas/mapclassify as oracles, edge cases."""
 
 from __future__ import annotations
 
@@ -12,7 +12,7 @@ from sitrep.analysis.ranks import NO_DATA, tercile_ranks
 
 NAN = np.nan
 
-# METHODS.md section 4 table: input, breaks (q1, q2), classes (0 = low, -1 = no data), counts.
+# docs/methods.md section 4 table: input, breaks (q1, q2), classes (0 = low, -1 = no data), counts.
 # Breaks are Hyndman & Fan (1996, Am Stat 50:361) type 7 [HAND]; classes and counts as
 # recorded there with mapclassify 2.10.0 / pandas 3.1.1 [LIB].
 TABLE = [
@@ -67,7 +67,7 @@ def _type7(sorted_values: np.ndarray, p: float) -> float:
 
 @pytest.mark.parametrize("seed", [1, 2, 3])
 def test_equals_pandas_qcut_and_type7_formula(seed: int) -> None:
-    # Oracle [LIB pandas.qcut(q=3), METHODS.md section 4]: identical classes on NaN-free input
+    # Oracle [LIB pandas.qcut(q=3), docs/methods.md section 4]: identical classes on NaN-free input
     # with unique breaks; cut points equal the written-out type-7 formula.
     rng = np.random.default_rng(seed)
     rates = np.round(rng.gamma(2.0, 1.5, size=int(rng.integers(5, 80))), 1)
@@ -79,7 +79,7 @@ def test_equals_pandas_qcut_and_type7_formula(seed: int) -> None:
 
 
 def test_equals_mapclassify_quantiles() -> None:
-    # Oracle [LIB mapclassify Quantiles(k=3), METHODS.md section 4]; mapclassify is not a
+    # Oracle [LIB mapclassify Quantiles(k=3), docs/methods.md section 4]; mapclassify is not a
     # dependency of sitrep, so this runs only where it is installed.
     mapclassify = pytest.importorskip("mapclassify")
     rates = np.array([2.1, 3.4, 1.8, 5.6, 4.0, 2.9, 3.4, 6.2, 1.2, 2.5, 0.7, 3.9])
@@ -89,7 +89,7 @@ def test_equals_mapclassify_quantiles() -> None:
 
 
 def test_nan_is_dropped_before_the_quantiles() -> None:
-    # METHODS.md section 4 [LIB]: mapclassify fed NaN gives bins [2.633, 5.8, nan] and puts the
+    # docs/methods.md section 4 [LIB]: mapclassify fed NaN gives bins [2.633, 5.8, nan] and puts the
     # maximum 6.2 in the lowest class; here 6.2 is high and the NaN districts have no rank.
     result = tercile_ranks(np.array([2.1, NAN, 1.8, 5.6, 4.0, 2.9, NAN, 6.2, 1.2]))
     assert result.ranks[7] == 3
@@ -98,7 +98,7 @@ def test_nan_is_dropped_before_the_quantiles() -> None:
 
 
 def test_valid_mask_excludes_districts_from_breaks() -> None:
-    # Suppressed districts are "no data" and do not move the breaks [CP, METHODS.md 6.2]:
+    # Suppressed districts are "no data" and do not move the breaks [CP, docs/methods.md 6.2]:
     # masking the two NaN positions of the table row gives the same cuts as the NaN row.
     values = np.array([2.1, 99.0, 1.8, 5.6, 4.0, 2.9, 50.0, 6.2, 1.2])
     valid = np.array([True, False, True, True, True, True, False, True, True])

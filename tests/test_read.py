@@ -566,6 +566,55 @@ def test_week_start_on_wrong_weekday(tmp_path: Path) -> None:
     assert table is None
 
 
+def test_declared_date_format_reads_us_dates_and_groups_cells_that_do_not_fit(
+    tmp_path: Path, clean: Path
+) -> None:
+    from sitrep.model import ValidationReport
+
+    ref, _ = read(clean)
+    # MMWR 2026-W44 ends Saturday 2026-11-07, written 11/07/2026 month first (epiweeks.Week(2026, 44))
+    end = {w: EpiWeek.parse(w).end for w in WEEKS}
+    assert end["2026-W44"] == dt.date(2026, 11, 7)
+    rows = [r[:2] + [end[r[2]].strftime("%m/%d/%Y")] + r[3:] for r in clean_rows()]
+    header = HEADER[:2] + ["week_ending"] + HEADER[3:]
+    path = write_csv(tmp_path / "us.csv", rows, header)
+    # never guessed: without the declaration every cell is an error naming the setting
+    table, report = read(path, columns={"week_end": "week_ending"})
+    assert table is None and {f.rule for f in report.findings} == {"week-invalid"}
+    assert "input.date_format" in report.findings[0].message
+    table, report = read(path, columns={"week_end": "week_ending"}, date_format="%m/%d/%Y")
+    assert report.findings == () and list(table.frame["week"]) == list(ref.frame["week"])
+    # day-first cells under a month-first declaration (days 14, 21, 28 cannot be months): one
+    # group for the column
+    rows = [r[:2] + [end[r[2]].strftime("%d/%m/%Y")] + r[3:] for r in clean_rows(weeks=WEEKS[1:])]
+    table, report = read(write_csv(tmp_path / "eu.csv", rows, header),
+                         columns={"week_end": "week_ending"}, date_format="%m/%d/%Y")
+    (group,) = ValidationReport(report.errors).grouped()
+    assert (group.rule, group.first.column, group.count) == ("week-invalid", "week_ending", len(rows))
+    assert "input.date_format = '%m/%d/%Y'" in group.message() and "'14/11/2026'" in group.message()
+
+
+def test_first_sheet_without_the_columns_names_the_sheet_that_has_them(tmp_path: Path) -> None:
+    import openpyxl
+
+    book = openpyxl.Workbook()
+    book.active.title = "Read me"
+    book.active.append(["This export holds the weekly ILI counts by district."])
+    sheet = book.create_sheet("Week 47")
+    sheet.append(HEADER)
+    for r in clean_rows():
+        sheet.append([r[0], r[1], r[2], int(r[3]), int(r[4]), int(r[5])])
+    path = tmp_path / "book.xlsx"
+    book.save(path)
+    table, report = read(path)
+    (f,) = report.findings
+    assert (f.rule, f.severity, f.value) == ("sheet-elsewhere", Severity.ERROR, "Week 47")
+    assert "'Read me'" in f.message and "input.sheet = 'Week 47'" in f.message
+    assert table is None
+    table, report = read(path, sheet="Week 47")
+    assert report.errors == () and len(table.frame) == len(clean_rows())
+
+
 def test_ambiguous_week_columns(tmp_path: Path, clean: Path) -> None:
     _, report = read(clean, columns={"year": "y"})
     assert [f.rule for f in report.findings] == ["week-columns-ambiguous"]

@@ -1,8 +1,8 @@
 """Tests of sitrep.analysis.seasonal: baseline, MEM thresholds, onset, intensity, same week.
 
-Sources of check values (tags as in /work/shared/METHODS.md):
-- METHODS 7.1 worked example [HAND/LIB]: baseline and onset numbers.
-- METHODS 7.2 worked example [HAND/own code]: MEM numbers. These are regression values of
+Sources of check values (tags as in /work/shared/docs/methods.md):
+- docs/methods.md 7.1 worked example [HAND/LIB]: baseline and onset numbers.
+- docs/methods.md 7.2 worked example [HAND/own code]: MEM numbers. These are regression values of
   our own computation, not an outside oracle (no published MEM check values were available).
 - "hand": derived in the comment beside the assertion from the formula.
 """
@@ -41,7 +41,7 @@ from sitrep.analysis.seasonal import (
 TOL = 1e-6
 
 # --------------------------------------------------------------------------- data
-# METHODS 7.1 worked example (invented; 3 prior seasons x 12 weeks; 400 tests/week).
+# docs/methods.md 7.1 worked example (invented; 3 prior seasons x 12 weeks; 400 tests/week).
 ILI_71 = {
     "S1": np.array([0.9, 1.0, 1.1, 1.3, 2.2, 3.5, 4.1, 3.0, 1.8, 1.2, 1.0, 0.9]),
     "S2": np.array([1.0, 1.0, 1.2, 1.5, 2.8, 4.6, 5.2, 3.9, 2.1, 1.4, 1.1, 1.0]),
@@ -55,7 +55,7 @@ POS_71 = {
 TESTED_71 = np.full(12, 400.0)
 CURRENT_71 = np.array([1.0, 1.1, 1.2, 1.1, 1.3, 1.5, 1.9, 2.4, 3.1])
 
-# METHODS 7.2 worked example (invented, 3 seasons x 30 weeks, ILI%).
+# docs/methods.md 7.2 worked example (invented, 3 seasons x 30 weeks, ILI%).
 A = np.array([.6, .7, .7, .8, .8, .9, .9, 1.0, 1.1, 1.2, 1.6, 2.4, 3.8, 5.6, 6.4, 5.0, 3.2, 2.0,
               1.4, 1.1, 1.0, .9, .8, .8, .7, .7, .6, .6, .6, .5])
 B = np.array([.5, .6, .6, .7, .7, .8, .8, .9, .9, 1.0, 1.0, 1.1, 1.3, 1.8, 2.9, 4.6, 6.9, 7.8,
@@ -74,7 +74,7 @@ def thresholds_tuple(m: MemThresholds) -> tuple[float | None, ...]:
 
 
 def test_share_rule_selects_methods_71_weeks() -> None:
-    # METHODS 7.1 step 1 [HAND]: S1 {1,2,3,11,12}, S2 {1,2,3,11,12}, S3 {1,2,3,4,11,12}.
+    # docs/methods.md 7.1 step 1 [HAND]: S1 {1,2,3,11,12}, S2 {1,2,3,11,12}, S3 {1,2,3,4,11,12}.
     expected = {"S1": [1, 2, 3, 11, 12], "S2": [1, 2, 3, 11, 12], "S3": [1, 2, 3, 4, 11, 12]}
     for label, weeks in expected.items():
         mask = non_influenza_weeks_by_share(POS_71[label])
@@ -93,11 +93,11 @@ def test_baseline_share_rule_methods_71() -> None:
     masks = {k: non_influenza_weeks_by_share(v) for k, v in POS_71.items()}
     b = baseline_from_weeks(ILI_71, masks, rule=NonInfluenzaRule.SHARE_OF_SEASON_POSITIVES)
     assert b.available and b.reason == ""
-    assert b.n_weeks == 16  # METHODS 7.1 step 2: "those 16 weeks"
-    assert b.mean == pytest.approx(0.993750, abs=TOL)  # METHODS 7.1 [HAND/LIB]
-    assert b.sd == pytest.approx(0.099791, abs=TOL)  # METHODS 7.1 SD(n-1) [HAND/LIB]
-    assert b.value == pytest.approx(1.193333, abs=TOL)  # METHODS 7.1 baseline [HAND/LIB]
-    assert b.rounded == 1.2  # METHODS 7.1 "-> 1.2%"
+    assert b.n_weeks == 16  # docs/methods.md 7.1 step 2: "those 16 weeks"
+    assert b.mean == pytest.approx(0.993750, abs=TOL)  # docs/methods.md 7.1 [HAND/LIB]
+    assert b.sd == pytest.approx(0.099791, abs=TOL)  # docs/methods.md 7.1 SD(n-1) [HAND/LIB]
+    assert b.value == pytest.approx(1.193333, abs=TOL)  # docs/methods.md 7.1 baseline [HAND/LIB]
+    assert b.rounded == 1.2  # docs/methods.md 7.1 "-> 1.2%"
     assert b.seasons_used == ("S1", "S2", "S3")
     assert b.weeks_by_season == ((1, 2, 3, 11, 12), (1, 2, 3, 11, 12), (1, 2, 3, 4, 11, 12))
     assert b.rule is NonInfluenzaRule.SHARE_OF_SEASON_POSITIVES
@@ -106,24 +106,24 @@ def test_baseline_share_rule_methods_71() -> None:
 def test_baseline_share_rule_population_sd_methods_71() -> None:
     masks = {k: non_influenza_weeks_by_share(v) for k, v in POS_71.items()}
     b = baseline_from_weeks(ILI_71, masks, ddof=0)
-    assert b.value == pytest.approx(1.186995, abs=TOL)  # METHODS 7.1 "(SD(n) -> 1.186995)"
+    assert b.value == pytest.approx(1.186995, abs=TOL)  # docs/methods.md 7.1 "(SD(n) -> 1.186995)"
     assert b.ddof == 0
 
 
 def test_baseline_positivity_rule_methods_71() -> None:
     masks = {k: non_influenza_weeks_by_positivity(v, TESTED_71) for k, v in POS_71.items()}
-    for mask in masks.values():  # METHODS 7.1: weeks {1-4, 10-12} in each season
+    for mask in masks.values():  # docs/methods.md 7.1: weeks {1-4, 10-12} in each season
         assert (np.flatnonzero(mask) + 1).tolist() == [1, 2, 3, 4, 10, 11, 12]
     b = baseline_from_weeks(ILI_71, masks, rule=NonInfluenzaRule.POSITIVITY)
-    assert b.n_weeks == 21  # METHODS 7.1 "(21 values)"
-    assert b.mean == pytest.approx(1.076190, abs=TOL)  # METHODS 7.1 [HAND/LIB]
-    assert b.sd == pytest.approx(0.181397, abs=TOL)  # METHODS 7.1 [HAND/LIB]
-    assert b.value == pytest.approx(1.438984, abs=TOL)  # METHODS 7.1 [HAND/LIB]
-    assert b.rounded == 1.4  # METHODS 7.1 "-> 1.4%"
+    assert b.n_weeks == 21  # docs/methods.md 7.1 "(21 values)"
+    assert b.mean == pytest.approx(1.076190, abs=TOL)  # docs/methods.md 7.1 [HAND/LIB]
+    assert b.sd == pytest.approx(0.181397, abs=TOL)  # docs/methods.md 7.1 [HAND/LIB]
+    assert b.value == pytest.approx(1.438984, abs=TOL)  # docs/methods.md 7.1 [HAND/LIB]
+    assert b.rounded == 1.4  # docs/methods.md 7.1 "-> 1.4%"
 
 
 def test_onset_methods_71_two_definitions_differ() -> None:
-    # METHODS 7.1 step 3 [HAND]: vs 1.2 the first run of 3 weeks >= 1.2 starts at week 5
+    # docs/methods.md 7.1 step 3 [HAND]: vs 1.2 the first run of 3 weeks >= 1.2 starts at week 5
     # (week 3 reaches 1.2 but week 4 drops); vs 1.4 (10% rule) onset is week 6.
     assert season_onset(CURRENT_71, 1.2) == 5
     assert season_onset(CURRENT_71, 1.4) == 6
@@ -188,7 +188,7 @@ def test_baseline_uses_last_three_seasons() -> None:
 def test_baseline_from_nonepidemic_outside_mem_periods() -> None:
     mem = mem_thresholds(MEM_72)
     b = baseline_from_nonepidemic(MEM_72, mem.periods)
-    # METHODS 7.2 periods: A 11-19, B 14-21, C 7-15 -> weeks outside them are pooled.
+    # docs/methods.md 7.2 periods: A 11-19, B 14-21, C 7-15 -> weeks outside them are pooled.
     outside = np.concatenate([A[:10], A[19:], B[:13], B[21:], C[:6], C[15:]])
     assert b.rule is NonInfluenzaRule.OUTSIDE_MEM_EPIDEMIC
     assert b.n_weeks == 21 + 22 + 21 == outside.size
@@ -223,7 +223,7 @@ def test_baseline_from_nonepidemic_missing_period_is_an_error() -> None:
 
 
 def test_map_curve_increments_methods_72() -> None:
-    # METHODS 7.2 raw MAP increments s=1..10 (3 dp) [HAND/own code].
+    # docs/methods.md 7.2 raw MAP increments s=1..10 (3 dp) [HAND/own code].
     expected = {
         "A": [13.223, 11.570, 10.331, 7.851, 6.612, 4.959, 4.132, 3.306, 2.893, 2.479],
         "B": [14.286, 12.637, 10.989, 8.425, 7.143, 5.311, 4.212, 3.297, 2.747],
@@ -244,7 +244,7 @@ def test_map_curve_relations(season: np.ndarray) -> None:
 
 
 def test_epidemic_periods_methods_72() -> None:
-    # METHODS 7.2 [HAND/own code]: A L=9 weeks 11-19 MAP 64.876; B L=8 14-21 66.300;
+    # docs/methods.md 7.2 [HAND/own code]: A L=9 weeks 11-19 MAP 64.876; B L=8 14-21 66.300;
     # C L=9 7-15 61.298. Own computation, not an outside oracle.
     expected = {"A": (11, 19, 9, 64.876), "B": (14, 21, 8, 66.300), "C": (7, 15, 9, 61.298)}
     for label, (start, end, length, map_pct) in expected.items():
@@ -256,7 +256,7 @@ def test_epidemic_periods_methods_72() -> None:
 
 
 def test_mem_thresholds_point_n2_methods_72() -> None:
-    # METHODS 7.2 [HAND/own code], n = 2 per season, point form. Own computation,
+    # docs/methods.md 7.2 [HAND/own code], n = 2 per season, point form. Own computation,
     # not an outside oracle.
     m = mem_thresholds(MEM_72, n_per_season=2)
     assert m.available and m.reason == ""
@@ -267,19 +267,19 @@ def test_mem_thresholds_point_n2_methods_72() -> None:
     assert sorted(m.pre_epidemic_values) == [1.0, 1.1, 1.1, 1.1, 1.2, 1.3]
     assert sorted(m.post_epidemic_values) == [1.0, 1.0, 1.1, 1.1, 1.1, 1.5]
     assert sorted(m.epidemic_values) == [4.3, 5.0, 5.6, 6.4, 6.9, 7.8]
-    assert m.epidemic_threshold == pytest.approx(1.303213, abs=TOL)  # METHODS 7.2
-    assert m.post_epidemic_threshold == pytest.approx(1.439588, abs=TOL)  # METHODS 7.2
-    assert m.medium_threshold == pytest.approx(5.566204, abs=TOL)  # METHODS 7.2
-    assert m.high_threshold == pytest.approx(7.786855, abs=TOL)  # METHODS 7.2
-    assert m.very_high_threshold == pytest.approx(9.032454, abs=TOL)  # METHODS 7.2
-    # METHODS 7.2 intermediate values: mean log 1.772127, SD log 0.218727, GM 5.883355.
+    assert m.epidemic_threshold == pytest.approx(1.303213, abs=TOL)  # docs/methods.md 7.2
+    assert m.post_epidemic_threshold == pytest.approx(1.439588, abs=TOL)  # docs/methods.md 7.2
+    assert m.medium_threshold == pytest.approx(5.566204, abs=TOL)  # docs/methods.md 7.2
+    assert m.high_threshold == pytest.approx(7.786855, abs=TOL)  # docs/methods.md 7.2
+    assert m.very_high_threshold == pytest.approx(9.032454, abs=TOL)  # docs/methods.md 7.2
+    # docs/methods.md 7.2 intermediate values: mean log 1.772127, SD log 0.218727, GM 5.883355.
     logs = np.log(m.epidemic_values)
     assert logs.mean() == pytest.approx(1.772127, abs=TOL)
     assert logs.std(ddof=1) == pytest.approx(0.218727, abs=TOL)
 
 
 def test_mem_thresholds_ci_form_n2_methods_72() -> None:
-    # METHODS 7.2 CI-of-mean variants [HAND/own code]: 1.202686 (z), 1.218295 (t5);
+    # docs/methods.md 7.2 CI-of-mean variants [HAND/own code]: 1.202686 (z), 1.218295 (t5);
     # intensity 5.751752 / 6.596658 / 7.008628. Own computation, not an outside oracle.
     m = mem_thresholds(MEM_72, n_per_season=2, form=IntervalForm.CI)
     assert m.form is IntervalForm.CI
@@ -295,7 +295,7 @@ def test_mem_thresholds_ci_form_n2_methods_72() -> None:
 
 
 def test_mem_thresholds_default_n_methods_72() -> None:
-    # METHODS 7.2 [HAND/own code]: default n = round(30/3) = 10 (all pre weeks when fewer
+    # docs/methods.md 7.2 [HAND/own code]: default n = round(30/3) = 10 (all pre weeks when fewer
     # exist; 26 pre values): threshold 1.180216; intensity 2.715464 / 6.283175 / 9.103580.
     m = mem_thresholds(MEM_72)
     assert m.n_per_season == 10
@@ -308,7 +308,7 @@ def test_mem_thresholds_default_n_methods_72() -> None:
 
 
 def test_mem_smoothed_slope_methods_72_note() -> None:
-    # METHODS 7.2 note [HAND/own code]: with kernel smoothing B's smoothed increment
+    # docs/methods.md 7.2 note [HAND/own code]: with kernel smoothing B's smoothed increment
     # D(9) = 2.840 >= 2.8, so L = 9, weeks 14-22. A and C unchanged. Own computation.
     smooth = np.diff(_smooth_local_linear(map_curve(B)))
     assert smooth[8] == pytest.approx(2.840, abs=5e-4)
@@ -319,12 +319,12 @@ def test_mem_smoothed_slope_methods_72_note() -> None:
     m = mem_thresholds(MEM_72, n_per_season=2, slope=MapSlope.SMOOTHED)
     assert m.slope is MapSlope.SMOOTHED
     assert [(q.start_week, q.end_week) for q in m.periods] == [(11, 19), (14, 22), (7, 15)]
-    # pre-epidemic weeks are unchanged, so the epidemic threshold is too (METHODS 7.2 value)
+    # pre-epidemic weeks are unchanged, so the epidemic threshold is too (docs/methods.md 7.2 value)
     assert m.epidemic_threshold == pytest.approx(1.303213, abs=TOL)
 
 
 def test_default_n_per_season() -> None:
-    # METHODS 7.2 step 4: round half to even like R: 4 seasons -> 8, 12 -> 2; 3 -> 10.
+    # docs/methods.md 7.2 step 4: round half to even like R: 4 seasons -> 8, 12 -> 2; 3 -> 10.
     assert default_n_per_season(3) == 10
     assert default_n_per_season(4) == 8
     assert default_n_per_season(12) == 2
@@ -475,7 +475,7 @@ def test_mem_rejects_bad_input() -> None:
 
 
 def test_intensity_levels_against_methods_72_thresholds() -> None:
-    # thresholds from METHODS 7.2 (point, n=2): 1.303213 | 5.566204 | 7.786855 | 9.032454
+    # thresholds from docs/methods.md 7.2 (point, n=2): 1.303213 | 5.566204 | 7.786855 | 9.032454
     m = mem_thresholds(MEM_72, n_per_season=2)
     assert intensity_level(1.0, m) is IntensityLevel.BELOW_EPIDEMIC_THRESHOLD
     assert intensity_level(m.epidemic_threshold, m) is IntensityLevel.LOW  # at threshold: >=
@@ -515,3 +515,16 @@ def test_same_week_past_seasons_sorted_and_missing() -> None:
     assert same_week_past_seasons({}, 1) == ()
     with pytest.raises(ValueError, match="season_week must be >= 1 .1-based., got 0"):
         same_week_past_seasons(past, 0)
+
+
+def test_season_window_stops_at_the_configured_week() -> None:
+    from sitrep.analysis.seasonal_context import _window_length
+
+    # a 52-week season starting in week 40: season week k is calendar week 40 + k - 1, wrapping after 52
+    calendar = {k: (40 + k - 2) % 52 + 1 for k in range(1, 53)}
+    assert calendar[1] == 40 and calendar[13] == 52 and calendar[14] == 1
+    assert _window_length(calendar, 40, 20, 52) == 33  # weeks 40..52 (13) and 1..20 (20) [HAND]
+    assert _window_length(calendar, 40, 0, 52) == 52  # 0: the whole season
+    # a 53-week year only shifts the position of week 20 by one
+    calendar53 = {k: (40 + k - 2) % 53 + 1 for k in range(1, 54)}
+    assert _window_length(calendar53, 40, 20, 53) == 34

@@ -26,7 +26,7 @@ def sids74() -> tuple[np.ndarray, np.ndarray, list[str]]:
 
 
 def test_sids2_moments(sids74: tuple[np.ndarray, np.ndarray, list[str]]) -> None:
-    # METHODS.md 6.1 [LIB, own implementation = esda]: m = 667/329,962, s^2, A, nbar.
+    # docs/methods.md 6.1 [LIB, own implementation = esda]: m = 667/329,962, s^2, A, nbar.
     e, b, _ = sids74
     mom = eb_moments(e, b)
     assert 1000 * mom.m == pytest.approx(2.021445, abs=5e-7)
@@ -39,7 +39,7 @@ def test_sids2_moments(sids74: tuple[np.ndarray, np.ndarray, list[str]]) -> None
 
 @pytest.mark.parametrize(
     ("county", "eb_per_1000", "weight"),
-    # METHODS.md 6.1 check values, SID74/BIR74 per 1,000 births [LIB esda 2.9.0 / own code].
+    # docs/methods.md 6.1 check values, SID74/BIR74 per 1,000 births [LIB esda 2.9.0 / own code].
     [
         ("Ashe", 1.697297, 0.293385),
         ("Alleghany", 1.705378, 0.156357),
@@ -69,7 +69,7 @@ def test_sids2_county_values(
 
 def test_sids2_spread_and_esda_agreement(sids74: tuple[np.ndarray, np.ndarray, list[str]]) -> None:
     # Population SD (ddof=0) across counties: raw 1.565454, EB 0.609520 per 1,000
-    # [LIB, METHODS.md 6.1]; with A > 0, equal to esda.smoothing.Empirical_Bayes [LIB].
+    # [LIB, docs/methods.md 6.1]; with A > 0, equal to esda.smoothing.Empirical_Bayes [LIB].
     e, b, _ = sids74
     theta = eb_rates(e, b)
     assert np.std(1000 * e / b) == pytest.approx(1.565454, abs=5e-7)
@@ -78,7 +78,7 @@ def test_sids2_spread_and_esda_agreement(sids74: tuple[np.ndarray, np.ndarray, l
 
 
 def test_negative_a_is_truncated() -> None:
-    # Marshall 1991 requires A >= 0 [PUB]; METHODS.md 6.1: e = [10, 11, 9, 10], n = 1000 each
+    # Marshall 1991 requires A >= 0 [PUB]; docs/methods.md 6.1: e = [10, 11, 9, 10], n = 1000 each
     # gives A = -9.5e-6 and Marshall's estimate 0.01 everywhere; esda 2.9.0 returns
     # [0.010, -0.009, 0.029, 0.010] [LIB], which we do not follow.
     e, n = np.array([10, 11, 9, 10]), np.array([1000] * 4)
@@ -125,7 +125,7 @@ def test_no_events_at_all() -> None:
 
 
 def test_assuncao_reis_sids2_first_five(sids74: tuple[np.ndarray, np.ndarray, list[str]]) -> None:
-    # esda.smoothing.assuncao_rate(SID74, BIR74)[:5] [LIB esda 2.9.0, METHODS.md 5.4].
+    # esda.smoothing.assuncao_rate(SID74, BIR74)[:5] [LIB esda 2.9.0, docs/methods.md 5.4].
     e, b, _ = sids74
     np.testing.assert_allclose(
         assuncao_reis_z(e, b)[:5], [-0.682304, -0.911328, -0.382448, -0.024295, 2.912637], atol=5e-7
@@ -133,7 +133,7 @@ def test_assuncao_reis_sids2_first_five(sids74: tuple[np.ndarray, np.ndarray, li
 
 
 def test_assuncao_reis_esda_docstring_toy() -> None:
-    # esda.smoothing.assuncao_rate docstring example [PUB: esda docstring, METHODS.md 5.4].
+    # esda.smoothing.assuncao_rate docstring example [PUB: esda docstring, docs/methods.md 5.4].
     e = np.array([30, 25, 25, 15, 33, 21, 30, 20])
     b = np.array([100, 100, 110, 90, 100, 90, 110, 90])
     np.testing.assert_allclose(
@@ -158,7 +158,7 @@ def test_assuncao_reis_negative_variance_falls_back_to_poisson() -> None:
 
 def test_rate_moran_on_sids2_gal(sids74: tuple[np.ndarray, np.ndarray, list[str]]) -> None:
     # Moran's I of the EB-standardised SID74 rates with the bundled sids2.gal (rook) weights,
-    # row-standardised: I = 0.271403 [LIB esda 2.9.0 Moran_Rate(adjusted=True), METHODS.md 5.4].
+    # row-standardised: I = 0.271403 [LIB esda 2.9.0 Moran_Rate(adjusted=True), docs/methods.md 5.4].
     e, b, _ = sids74
     gal = libpysal.io.open(examples.get_path("sids2.gal"))
     try:

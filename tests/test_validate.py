@@ -2,7 +2,7 @@
 
 Tables are written with the fixture builders and read with the real reader,
 so every asserted line number is the line in the file (header = 1).
-Thresholds are METHODS.md section 9.4 defaults (common practice).
+Thresholds are docs/methods.md section 9.4 defaults (common practice).
 """
 
 from __future__ import annotations

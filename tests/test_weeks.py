@@ -11,7 +11,7 @@ from sitrep.weeks import EpiWeek, WeekSystem, season_of, weeks_in_year
 
 MMWR, ISO = WeekSystem.MMWR, WeekSystem.ISO
 
-# Date -> (MMWR week, ISO week): METHODS.md §1.2 table, [LIB] epiweeks 2.4.0 and date.isocalendar agree.
+# Date -> (MMWR week, ISO week): docs/methods.md §1.2 table, [LIB] epiweeks 2.4.0 and date.isocalendar agree.
 TABLE = [
     ("2014-12-27", "2014-W52", "2014-W52"),
     ("2014-12-28", "2014-W53", "2014-W52"),
@@ -42,7 +42,7 @@ def test_date_to_week_table(day: str, mmwr: str, iso: str) -> None:
     assert str(EpiWeek.from_date(d, ISO)) == iso
 
 
-# Published ISO examples (PostgreSQL EXTRACT(week) documentation, per METHODS.md §1.2 [PUB]).
+# Published ISO examples (PostgreSQL EXTRACT(week) documentation, per docs/methods.md §1.2 [PUB]).
 @pytest.mark.parametrize(
     ("day", "iso"),
     [("2005-01-01", "2004-W53"), ("2006-01-01", "2005-W52"), ("2012-12-31", "2013-W01"), ("1970-01-01", "1970-W01")],
@@ -66,7 +66,7 @@ def test_every_day_agrees_with_references() -> None:
 
 
 def test_53_week_years() -> None:
-    # METHODS.md §1.1 [LIB]: 53-week years 1990-2040.
+    # docs/methods.md §1.1 [LIB]: 53-week years 1990-2040.
     mmwr = [y for y in range(1990, 2041) if weeks_in_year(y, MMWR) == 53]
     iso = [y for y in range(1990, 2041) if weeks_in_year(y, ISO) == 53]
     assert mmwr == [1992, 1997, 2003, 2008, 2014, 2020, 2025, 2031, 2036]
@@ -83,7 +83,7 @@ def test_arithmetic_across_year_ends() -> None:
 
 
 def test_week_dates() -> None:
-    # MMWR 2020-W53 = 2020-12-27..2021-01-02 (METHODS.md §1.2)
+    # MMWR 2020-W53 = 2020-12-27..2021-01-02 (docs/methods.md §1.2)
     w = EpiWeek(2020, 53, MMWR)
     assert (w.start, w.end) == (dt.date(2020, 12, 27), dt.date(2021, 1, 2))
     assert EpiWeek(2026, 47, MMWR).start == dt.date(2026, 11, 22)
@@ -91,7 +91,7 @@ def test_week_dates() -> None:
 
 @pytest.mark.parametrize(
     ("label", "season", "index"),
-    # METHODS.md §1.3 check values [LIB, epiweeks]
+    # docs/methods.md §1.3 check values [LIB, epiweeks]
     [("2014-W53", "2014-15", 14), ("2015-W01", "2014-15", 15), ("2015-W39", "2014-15", 53),
      ("2015-W40", "2015-16", 1), ("2019-W52", "2019-20", 13), ("2020-W20", "2019-20", 33),
      ("2020-W53", "2020-21", 14)],

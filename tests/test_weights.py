@@ -4,7 +4,7 @@ Reference data: libpysal's bundled examples ``columbus`` (49 Columbus, Ohio
 neighbourhoods; Anselin 1988, Spatial Econometrics, Table 12.1) and ``sids2``
 (100 North Carolina counties; Cressie 1993). Their GAL files are independent
 neighbour lists shipped with libpysal: columbus.gal is queen contiguity,
-sids2.gal is rook contiguity (METHODS.md §5.1, checked there with libpysal).
+sids2.gal is rook contiguity (docs/methods.md §5.1, checked there with libpysal).
 """
 
 from __future__ import annotations
@@ -64,7 +64,7 @@ def sids2() -> gpd.GeoDataFrame:
 
 def test_columbus_queen_matches_bundled_gal(columbus: gpd.GeoDataFrame) -> None:
     dg = build_graph(columbus, kind="queen")
-    # columbus.gal is queen contiguity with 118 joins (METHODS.md §5.1 [LIB libpysal 4.14.1]).
+    # columbus.gal is queen contiguity with 118 joins (docs/methods.md §5.1 [LIB libpysal 4.14.1]).
     assert dg.neighbours == _gal_neighbours("columbus.gal")
     assert dg.n_links == 118
     assert dg.islands == ()
@@ -76,12 +76,12 @@ def test_columbus_queen_matches_bundled_gal(columbus: gpd.GeoDataFrame) -> None:
 def test_sids2_rook_matches_bundled_gal_and_queen_has_more_joins(sids2: gpd.GeoDataFrame) -> None:
     rook = build_graph(sids2, kind="rook")
     queen = build_graph(sids2, kind="queen")
-    # sids2.gal is rook (231 joins); queen from the shapefile has 245 (METHODS.md §5.1 [LIB]).
+    # sids2.gal is rook (231 joins); queen from the shapefile has 245 (docs/methods.md §5.1 [LIB]).
     assert rook.neighbours == _gal_neighbours("sids2.gal")
     assert rook.n_links == 231
     assert queen.n_links == 245
     differ = sum(rook.neighbours[i] != queen.neighbours[i] for i in rook.ids)
-    assert differ == 26  # METHODS.md §5.1: "26 counties differ" [LIB]
+    assert differ == 26  # docs/methods.md §5.1: "26 counties differ" [LIB]
 
 
 def test_rook_and_queen_on_a_lattice() -> None:
@@ -121,7 +121,7 @@ def test_island_is_reported_without_any_warning() -> None:
     assert dg.neighbours["far"] == ()
     assert dg.n_components == 2  # the lattice and the island [HAND]
     assert dg.no_neighbours == ("far",)
-    # An island keeps an all-zero row after row-standardisation (METHODS.md §5.1).
+    # An island keeps an all-zero row after row-standardisation (docs/methods.md §5.1).
     row = dg.graph.sparse.toarray()[dg.ids.index("far")]
     assert not row.any()
     assert any("far" in n for n in dg.notes)

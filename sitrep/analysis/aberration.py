@@ -2,7 +2,7 @@
 
 The three adaptive algorithms of Hutwagner et al. (2003, J Urban Health 80(2 Suppl
 1):i89-i96) were designed for daily counts with a 7-day baseline. sitrep applies
-them to **weekly** series by reading "day" as "week" (METHODS 8.1):
+them to **weekly** series by reading "day" as "week" (docs/methods.md 8.1):
 
 - C1: baseline weeks t-7..t-1; ``C1_t = (y_t - mean) / s``; alarm if ``C1_t > 3``.
 - C2: baseline weeks t-9..t-3 (a 2-week guard band); ``C2_t = (y_t - mean) / s``;

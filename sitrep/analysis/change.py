@@ -142,11 +142,13 @@ def week_over_week(
 
     - ``NOT_ASSESSABLE`` where ``n1 == 0`` or ``n0 == 0`` or a count is
       missing; every numeric output is NaN there (``from_zero`` False).
-    - ``INCREASE`` / ``DECREASE`` only if ``p < alpha`` **and**
-      ``|diff_pp| >= min_change_pp`` (compared with a 1e-9 pp slack for
-      floating-point rounding), by the sign of the difference.
-    - ``SIMILAR`` otherwise, including significant changes smaller than
-      ``min_change_pp``.
+    - ``INCREASE`` / ``DECREASE`` only if ``p < alpha`` **and** the Newcombe
+      interval excludes 0 **and** ``|diff_pp| >= min_change_pp`` (compared
+      with a 1e-9 pp slack for floating-point rounding), by the sign of the
+      difference. Requiring the interval too keeps the class consistent with
+      the interval printed beside it (docs/methods.md, "Week-over-week change").
+    - ``SIMILAR`` otherwise, including detectable changes smaller than
+      ``min_change_pp`` (the report words those "small but detectable").
 
     Decisions: the default test is the pooled z because it is the textbook
     test for two proportions, agrees with the chi-square test staff may
@@ -161,9 +163,9 @@ def week_over_week(
         low  = d - sqrt((p1 - l1)^2 + (u0 - p0)^2)
         high = d + sqrt((u1 - p1)^2 + (p0 - l0)^2)
 
-    It is for display; the class depends only on the test and the minimum
-    change, so the interval may include 0 for a district flagged by the test
-    (or exclude it for one that is not) near the boundary.
+    Near the boundary the test and the interval can disagree; the class then
+    follows the more cautious of the two (no class when either includes "no
+    change").
 
     Relative change ``p1/p0 - 1`` is NaN when ``p0 == 0``; when in addition
     ``p1 > 0``, ``from_zero`` is True and the report must say "from 0 % to
@@ -208,7 +210,8 @@ def week_over_week(
     from_zero[ok] = (p0 == 0) & (p1 > 0)
     pval[ok] = _two_sided_p(y1, t1, y0, t0, method)
 
-    significant = ok & (pval < alpha)
+    # the test is met only when the p-value and the printed interval agree
+    significant = ok & (pval < alpha) & ((low > 0) | (high < 0))
     large = ok & (np.abs(diff) >= min_change_pp - _PP_TOLERANCE)
     classes = tuple(
         ChangeClass.NOT_ASSESSABLE

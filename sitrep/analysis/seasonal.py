@@ -4,7 +4,7 @@ Every function here takes plain numpy arrays of weekly ILI percent, one array pe
 season, aligned by *season week* (index 0 is the first week of the season window,
 e.g. week 40). NaN marks a week with no data. Week numbers that these functions
 *return or accept* (epidemic periods, onset, ``season_week``) are **1-based season
-weeks**: 1 = first week of the season window, as in METHODS.md sections 7.1 and 7.2.
+weeks**: 1 = first week of the season window, as in docs/methods.md sections 7.1 and 7.2.
 
 Past seasons are given either as a mapping ``{label: array}`` (labels are sorted,
 so use labels that sort chronologically, such as ``"2021-22"``) or as a sequence
@@ -12,10 +12,10 @@ of arrays ordered oldest first (labelled ``"1"``, ``"2"``, ... in that order).
 
 Contents
 --------
-- Baseline (METHODS 7.1): :func:`baseline_from_nonepidemic` (the declared rule),
+- Baseline (docs/methods.md 7.1): :func:`baseline_from_nonepidemic` (the declared rule),
   :func:`baseline_from_weeks` (any week selection), and the two laboratory rules
   :func:`non_influenza_weeks_by_share` and :func:`non_influenza_weeks_by_positivity`.
-- Moving Epidemic Method (METHODS 7.2): :func:`map_curve`, :func:`epidemic_period`,
+- Moving Epidemic Method (docs/methods.md 7.2): :func:`map_curve`, :func:`epidemic_period`,
   :func:`mem_thresholds`, :func:`interpolate_missing`.
 - Prospective use: :func:`season_onset`, :func:`intensity_level`,
   :func:`same_week_past_seasons`.
@@ -79,7 +79,7 @@ MIN_MEM_SEASONS = 2
 """Fewest usable past seasons for which MEM thresholds are reported (sitrep decision)."""
 
 MIN_BASELINE_SEASONS = 3
-"""The baseline is defined on the previous three seasons (METHODS 7.1); fewer -> not available."""
+"""The baseline is defined on the previous three seasons (docs/methods.md 7.1); fewer -> not available."""
 
 TARGET_POOLED_VALUES = 30
 """MEM pools about this many values: n per season = max(1, round(30 / seasons))."""
@@ -94,7 +94,7 @@ _TIE_RTOL = 1e-9
 
 
 class IntervalForm(enum.Enum):
-    """How MEM turns a pool of values into a threshold (METHODS 7.2 step 5, section 10 item 2).
+    """How MEM turns a pool of values into a threshold (docs/methods.md 7.2 step 5, section 10 item 2).
 
     ``POINT`` (default, as the reference implementation) is ``mean + z * SD``, a
     normal quantile. ``CI`` is the upper one-sided confidence limit of the mean,
@@ -110,7 +110,7 @@ class IntervalForm(enum.Enum):
 
 
 class MapSlope(enum.Enum):
-    """Which MAP curve the slope criterion is applied to (METHODS 7.2 step 3).
+    """Which MAP curve the slope criterion is applied to (docs/methods.md 7.2 step 3).
 
     ``RAW`` (default) differences the MAP curve itself, as the paper describes.
     ``SMOOTHED`` first smooths the MAP curve, as the reference implementation
@@ -362,7 +362,7 @@ def non_influenza_weeks_by_share(
     A week is non-influenza when it belongs to a run of at least ``min_run``
     consecutive weeks in each of which the week's positive specimens are
     strictly less than ``max_share`` of the season's total positives
-    (METHODS 7.1, current methods text of the national baseline).
+    (docs/methods.md 7.1, current methods text of the national baseline).
 
     Parameters
     ----------
@@ -425,7 +425,7 @@ def non_influenza_weeks_by_positivity(
     """Mark the non-influenza weeks of one season by the "< 10% positive" rule.
 
     A week is non-influenza when positives / tested is strictly less than
-    ``max_fraction`` (METHODS 7.1, older footnotes of the national baseline).
+    ``max_fraction`` (docs/methods.md 7.1, older footnotes of the national baseline).
 
     Parameters
     ----------
@@ -485,7 +485,7 @@ def baseline_from_weeks(
     The last ``n_seasons`` seasons (most recent) are used. In each, the weeks
     marked True in ``non_influenza_weeks`` and not missing are pooled across
     seasons, and the baseline is ``mean + sd_multiplier * SD`` with the SD's
-    denominator ``N - ddof`` (METHODS 7.1).
+    denominator ``N - ddof`` (docs/methods.md 7.1).
 
     Parameters
     ----------
@@ -604,7 +604,7 @@ def baseline_from_nonepidemic(
 ) -> Baseline:
     """Baseline = mean + 2 SD of ILI% in the weeks outside each past season's MEM epidemic.
 
-    This is sitrep's declared rule for the national-baseline method (METHODS 7.1)
+    This is sitrep's declared rule for the national-baseline method (docs/methods.md 7.1)
     when no laboratory data are available: the non-influenza weeks of each of the
     previous ``n_seasons`` seasons are the weeks *before and after* that season's
     MEM epidemic period (:func:`epidemic_period`, usually taken from
@@ -648,7 +648,7 @@ def baseline_from_nonepidemic(
     weeks just outside the period may still carry some influenza, which makes
     this baseline somewhat higher than a laboratory-based one. When positives
     are available, use :func:`baseline_from_weeks` with
-    :func:`non_influenza_weeks_by_share` (METHODS 7.1 worked example).
+    :func:`non_influenza_weeks_by_share` (docs/methods.md 7.1 worked example).
 
     Examples
     --------
@@ -807,7 +807,7 @@ def epidemic_period(
     With increments D(s) = MAP(s) - MAP(s - 1), the length is
     L = (smallest s with D(s) < delta) - 1, at least 1; if no increment falls
     below ``delta`` the whole season is the epidemic (L = w). The period is the
-    earliest L-week window attaining MAP(L) (METHODS 7.2 step 3).
+    earliest L-week window attaining MAP(L) (docs/methods.md 7.2 step 3).
 
     Parameters
     ----------
@@ -1145,7 +1145,7 @@ def season_onset(
     Onset (Biggerstaff et al. 2016): the first week with ILI% at or above the
     baseline that stays there for at least ``k - 1`` further weeks. The
     comparison is ``>=`` (at or above), as sitrep compares published 1-decimal
-    values with the published 1-decimal baseline (METHODS 7.1).
+    values with the published 1-decimal baseline (docs/methods.md 7.1).
 
     Parameters
     ----------

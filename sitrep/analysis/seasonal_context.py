@@ -57,6 +57,15 @@ class SeasonalContext:
     district_flags: dict[str, str]
     method_note: str
     mem: seasonal.MemThresholds | None = None
+    window_end_week: int = 0
+    """Last calendar week of the season window the thresholds were computed on (0: the whole season)."""
+    threshold_band: tuple[float, float] | None = None
+    """(lowest, highest) epidemic threshold over the configured window and the whole season; None
+    when only one is available or they agree."""
+    baseline_seasons_used: int = 0
+    baseline_weeks: int = 0
+    previous_visits: tuple[int, ...] = ()
+    """All visits (pooled) of up to 8 weeks before the report week, oldest first (for completeness)."""
 
 
 def pooled_by_week(frame: pd.DataFrame) -> pd.DataFrame:
@@ -99,9 +108,11 @@ def seasonal_context(
     pooled = pooled_by_week(rows)
     season_label, season_week = season_of(week, season_start_week)
     by_season: dict[str, dict[int, float]] = {}
+    calendar: dict[str, dict[int, int]] = {}
     for w, pct in zip(pooled["week"], pooled["pct"], strict=True):
         label, index = season_of(w, season_start_week)
         by_season.setdefault(label, {})[index] = float(pct)
+        calendar.setdefault(label, {})[index] = w.week
     past: dict[str, FloatArray] = {}
     for label in sorted(by_season):
         if label >= season_label:
@@ -109,16 +120,29 @@ def seasonal_context(
         values = by_season[label]
         length = max(values)
         past[label] = np.array([values.get(i, np.nan) for i in range(1, length + 1)], dtype=float)
+    windowed = {
+        k: v[: _window_length(calendar[k], season_start_week, settings.mem_window_end_week, len(v))]
+        for k, v in past.items()
+    }
     current_values = by_season.get(season_label, {})
     curve = tuple((i, current_values[i]) for i in sorted(current_values) if i <= season_week)
     this_pct = current_values.get(season_week, math.nan)
 
     mem = seasonal.mem_thresholds(
-        past,
+        windowed,
         delta=settings.mem_delta,
         form=settings.mem_form,
         max_seasons=settings.mem_max_seasons,
     ) if past else None
+    band = None
+    if mem is not None and mem.available and mem.epidemic_threshold is not None and settings.mem_window_end_week:
+        whole = seasonal.mem_thresholds(
+            past, delta=settings.mem_delta, form=settings.mem_form, max_seasons=settings.mem_max_seasons
+        )
+        if whole.available and whole.epidemic_threshold is not None:
+            pair = sorted((float(mem.epidemic_threshold), float(whole.epidemic_threshold)))
+            if pair[1] - pair[0] > 1e-9:
+                band = (pair[0], pair[1])
     available = bool(mem and mem.available)
     reason = mem.reason if mem is not None else (
         "Epidemic thresholds are not available: the history holds no past season."
@@ -126,6 +150,7 @@ def seasonal_context(
 
     baseline_value: float | None = None
     baseline_note = ""
+    baseline_seasons_used = baseline_weeks = 0
     if past:
         periods = [seasonal.epidemic_period(v, delta=settings.mem_delta, label=k) for k, v in past.items()]
         base = seasonal.baseline_from_nonepidemic(
@@ -136,6 +161,7 @@ def seasonal_context(
         )
         if base.available and base.value is not None:
             baseline_value = float(base.value)
+            baseline_seasons_used, baseline_weeks = len(base.seasons_used), int(base.n_weeks)
             baseline_note = (
                 f"mean + {settings.baseline_sd:g} SD of ILI% in the weeks outside each of the last "
                 f"{len(base.seasons_used)} seasons' epidemic periods ({base.n_weeks} weeks)"
@@ -184,7 +210,33 @@ def seasonal_context(
         district_flags=flags,
         method_note=note,
         mem=mem,
+        window_end_week=settings.mem_window_end_week,
+        threshold_band=band,
+        baseline_seasons_used=baseline_seasons_used,
+        baseline_weeks=baseline_weeks,
+        previous_visits=tuple(
+            int(v) for w, v in zip(pooled["week"], pooled["total_visits"], strict=True) if w < week
+        )[-8:],
     )
+
+
+def _window_length(calendar: dict[int, int], start: int, end: int, length: int) -> int:
+    """Season weeks 1..L kept by the window from calendar week ``start`` to ``end`` (0: all).
+
+    The window runs from the season's first week through the first later week
+    numbered ``end`` (wrapping past week 52 or 53 when ``end < start``); weeks
+    missing from the pooled series are counted by position.
+    """
+    if not end:
+        return length
+    for index in range(1, length + 1):
+        week = calendar.get(index)
+        if week is None:
+            continue
+        if week == end:
+            return index
+    # the season's data stops before the window's last week: keep it all
+    return length
 
 
 def _district_flags(rows: pd.DataFrame, week: EpiWeek, settings: SeasonalSettings) -> dict[str, str]:

@@ -40,6 +40,7 @@ RULES: tuple[tuple[str, str], ...] = (
     ("file-encoding", "the bytes are not valid in the declared input.encoding"),
     ("file-unparseable", "the file cannot be parsed as the declared format"),
     ("sheet-missing", "the XLSX workbook has no worksheet named input.sheet"),
+    ("sheet-elsewhere", "the first worksheet lacks the columns another worksheet has (input.sheet)"),
     ("row-field-count", "a CSV row has a different number of fields from the header"),
     ("row-blank", "a blank row inside the table was skipped (info)"),
     ("column-duplicated", "two header cells carry the same column name"),
@@ -494,6 +495,24 @@ def _read_xlsx(data: bytes, settings: InputSettings, out: FindingCollector) -> _
             )
             return None
         sheet = book[settings.sheet] if settings.sheet is not None else book.worksheets[0]
+        if settings.sheet is None and len(book.worksheets) > 1:
+            cmap = settings.columns
+            wanted = [_nfc(c).strip() for c in (cmap.district_id, cmap.ili_visits, cmap.total_visits)]
+            if not set(wanted) <= set(_sheet_header(sheet)):
+                other = next(
+                    (ws.title for ws in book.worksheets[1:] if set(wanted) <= set(_sheet_header(ws))),
+                    None,
+                )
+                if other is not None:
+                    out.error(
+                        "sheet-elsewhere",
+                        f"the first worksheet {sheet.title!r} lacks the configured columns "
+                        f"({', '.join(map(repr, wanted))}) but worksheet {other!r} has them; set "
+                        f"input.sheet = {other!r} to read it (sitrep reads the first worksheet "
+                        "unless input.sheet names another)",
+                        value=other,
+                    )
+                    return None
         id_name = _nfc(settings.columns.district_id)
         header: list[str] | None = None
         id_pos: int | None = None
@@ -542,6 +561,14 @@ def _read_xlsx(data: bytes, settings: InputSettings, out: FindingCollector) -> _
     if id_pos is not None:
         raw.numeric_id_cells[id_pos] = np.array(numeric_id, dtype=bool)
     return raw
+
+
+def _sheet_header(sheet: Any) -> list[str]:
+    """The first non-empty row of a worksheet, as stripped NFC text."""
+    for values in sheet.iter_rows(values_only=True):
+        if any(v is not None and str(v).strip() for v in values):
+            return [_nfc(str(v)).strip() for v in values if v is not None]
+    return []
 
 
 def _read_parquet(data: bytes, settings: InputSettings, out: FindingCollector) -> _Raw | None:
@@ -885,7 +912,9 @@ def _type_table(
         rate = values / 10.0 if cmap.rate_scale == "per_1000" else values
 
     # ---- weeks
-    week_codes, categories = _type_weeks(raw, spec, pos_week, names, system, id_at, out)
+    week_codes, categories = _type_weeks(
+        raw, spec, pos_week, names, system, id_at, out, settings.date_format
+    )
 
     if out.has_errors or week_codes is None:
         return None
@@ -1028,6 +1057,7 @@ def _type_weeks(
     system: WeekSystem,
     id_at: Callable[[int], str | None],
     out: FindingCollector,
+    date_format: str | None = None,
 ) -> tuple[np.ndarray | None, list[EpiWeek]]:
     """Parse the week cells; return codes into a list of distinct EpiWeeks."""
     kind = spec[0]
@@ -1084,12 +1114,26 @@ def _type_weeks(
 
     def parse_date(t: str) -> EpiWeek | tuple[str, str]:
         t = t.strip()
-        if not _DATE.match(t):
-            return ("week-invalid", f"expected an ISO date YYYY-MM-DD, got {t!r}")
-        try:
-            day = dt.date.fromisoformat(t)
-        except ValueError as exc:
-            return ("week-invalid", f"expected a valid date, got {t!r} ({exc})")
+        if _DATE.match(t):
+            try:
+                day = dt.date.fromisoformat(t)
+            except ValueError as exc:
+                return ("week-invalid", f"expected a valid date, got {t!r} ({exc})")
+        elif date_format:
+            try:
+                day = dt.datetime.strptime(t, date_format).date()
+            except ValueError:
+                return (
+                    "week-invalid",
+                    f"expected a date written as input.date_format = {date_format!r} (or ISO "
+                    f"YYYY-MM-DD), got {t!r}; check the declared format against the file",
+                )
+        else:
+            return (
+                "week-invalid",
+                f"expected an ISO date YYYY-MM-DD, got {t!r}; if the file writes dates another "
+                "way, declare it with input.date_format (e.g. '%m/%d/%Y' for 10/07/2023)",
+            )
         want = first_day if kind == "start" else last_day
         if day.weekday() != want:
             return "week-date-weekday", (

@@ -3,7 +3,7 @@
 Pure functions (no I/O): they take the typed tables made by
 :mod:`sitrep.ingest.read` and return a :class:`~sitrep.model.ValidationReport`.
 Error-level findings block the run; warnings go into the report's data-quality
-section. Methods follow METHODS.md section 9.4 (common practice).
+section. Methods follow docs/methods.md section 9.4 (common practice).
 """
 
 from __future__ import annotations

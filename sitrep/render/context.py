@@ -17,8 +17,12 @@ from sitrep.analysis.seasonal_context import SeasonalContext
 from sitrep.analysis.week import WeekAnalysis
 from sitrep.config import Config
 from sitrep.model import InputFile, ValidationReport
-from sitrep.render import narrative as nv
 from sitrep.render.report_figures import FigureItem, ReportFigures
+from sitrep.render.wording import formats as fm
+from sitrep.render.wording import methods as mt
+from sitrep.render.wording import plain as pl
+from sitrep.render.wording import sentences as nv
+from sitrep.render.wording.mail import ATTACHED
 
 __all__ = [
     "DistrictRow",
@@ -110,27 +114,18 @@ class ReportContext:
     """What the statistics left out or could not do this week (e.g. districts without data)."""
     reissue_note: str = ""
     """Set on a reissued report: which version this is, what it supersedes and why."""
+    draft_key_messages: tuple[str, ...] = ()
+    """The key messages in plain language, for the communications draft."""
+    draft_intro: str = pl.DRAFT_INTRO
+    ci_heading: str = "95% CI"
+    """Heading of the district table's interval column (from analysis.confidence)."""
+    attached_note: str = ATTACHED
+    build_time: str = ""
+    """ISO 8601 UTC time of the build (from SOURCE_DATE_EPOCH when set), for file properties."""
 
 
 PDF_FINDINGS = 25
 """Most data-quality findings listed in the PDF."""
-
-CAUTIONS = (
-    "Figures are provisional: recent weeks usually rise as late reports arrive, and past weeks"
-    " may be revised.",
-    "Influenza-like illness is a syndrome defined by symptoms; it includes illnesses other than"
-    " influenza and is not laboratory-confirmed influenza.",
-    "Percentages for districts with few visits are unstable; districts below the minimum number"
-    " of visits are not shown.",
-    "Clusters are statistical: they mark districts whose values resemble their neighbours' more"
-    " than chance would suggest, not a common source of infection. With many districts, some"
-    " flags occur by chance.",
-    "This report describes population-level surveillance and is not for individual clinical"
-    " decisions.",
-    "Defer to the local health authority for public-health action and follow its rules on"
-    " small-number suppression before sharing district figures.",
-)
-
 
 def _month_range(start: Any, end: Any) -> str:
     if start.year != end.year:
@@ -158,19 +153,29 @@ def build_context(
     versions: Mapping[str, str],
     inputs: Sequence[InputFile],
     reissue: tuple[int, str] | None = None,
+    version: int | None = None,
+    build_time: str = "",
+    digits: int | None = None,
     projection: str = "",
 ) -> ReportContext:
     """Assemble the report context from the week's results (pure).
 
-    ``projection`` is the sentence saying in which CRS the maps are drawn and
-    distances measured (``Districts.projection``); it becomes a methods entry.
+    ``version`` is the archive version of this report (None when it is not
+    archived: ``report.version`` is shown then); ``digits`` prints district
+    values and cut points (default: :func:`context_digits`). ``projection`` is
+    the sentence saying in which CRS the maps are drawn and distances measured
+    (``Districts.projection``); it becomes a methods entry.
     """
     week = analysis.week
     prior = analysis.prior_week
     j = analysis.jurisdiction
+    a = config.analysis
+    conf = a.confidence
     names = dict(zip(analysis.table["district_id"], analysis.table["district_name"], strict=True))
     dates = _month_range(week.start, week.end)
     completeness_drop = any("completeness" in f.rule for f in validation.warnings)
+    if digits is None:
+        digits = context_digits(analysis, seasonal)
 
     level = nv.level_sentence(
         week_number=week.week,
@@ -179,109 +184,228 @@ def build_context(
         pct=j.ili_percent,
         low=j.ci_low,
         high=j.ci_high,
+        confidence=conf,
         n_reporting=j.n_districts_reporting,
         n_total=j.n_districts_total,
     )
-    change = nv.change_sentence(
+    verdict = nv.change_verdict(
         change_class=j.change_class.value,
+        p_value=j.change_p,
+        alpha=a.change_alpha,
+        diff_pp=j.change_pp,
+        low_pp=j.change_low_pp,
+        high_pp=j.change_high_pp,
+    )
+    rising_for = nv.rising_weeks([v for _, v in seasonal.current_curve])
+    change = nv.change_sentence(
+        verdict=verdict,
         pct_now=j.ili_percent,
         pct_before=j.prior_ili_percent,
         diff_pp=j.change_pp,
         low_pp=j.change_low_pp,
         high_pp=j.change_high_pp,
+        confidence=conf,
         prior_week_number=prior.week if prior is not None else week.week - 1,
+        min_change_pp=a.min_change_pp,
         revised_from=j.prior_ili_percent_published,
         completeness_drop=completeness_drop,
-        p_value=j.change_p,
-        alpha=config.analysis.change_alpha,
-        min_change_pp=config.analysis.min_change_pp,
+        rising_for=rising_for,
+    )
+    band_reason = (
+        f" (season window to week {seasonal.window_end_week} or the whole season)"
+        if seasonal.window_end_week
+        else ""
     )
     thresholds = nv.threshold_sentence(
         pct=j.ili_percent,
         epidemic_threshold=seasonal.epidemic_threshold,
         intensity=seasonal.intensity if seasonal.thresholds_available else None,
         baseline=seasonal.baseline,
+        digits=digits,
+        band=seasonal.threshold_band,
+        band_reason=band_reason,
         unavailable_reason=seasonal.thresholds_reason,
     )
     terc = analysis.terciles
     table = analysis.table
-    high_names = [names[i] for i, r in zip(table["district_id"], terc.ranks, strict=True) if r == 3]
+    pct_of = dict(zip(table["district_id"], (_f(x) for x in table["ili_percent"]), strict=True))
+    high_ids = [i for i, r in zip(table["district_id"], terc.ranks, strict=True) if r == 3]
     n_classed = int(sum(1 for r in terc.ranks if r > 0))
     tercile = nv.tercile_sentence(
-        n_high=len(high_names),
         n_classed=n_classed,
         upper_cut=terc.cuts[1] if terc.cuts else None,
-        names=high_names,
+        ranked=[(names[i], pct_of[i]) for i in high_ids],
+        digits=digits,
     )
     clusters = analysis.clusters
     assessable = clusters.assessable
     transitions = analysis.transitions
+    level_q = a.fdr_q if a.correction == "fdr_bh" else a.alpha
+    adjusted = clusters.q_values if a.correction == "fdr_bh" else clusters.p_values
+    q_of = dict(zip(clusters.ids, (_f(x) for x in adjusted), strict=True))
+    q_before: dict[str, float] = {}
+    if analysis.prior_clusters is not None:
+        pc = analysis.prior_clusters
+        prior_adjusted = pc.q_values if a.correction == "fdr_bh" else pc.p_values
+        q_before = dict(zip(pc.ids, (_f(x) for x in prior_adjusted), strict=True))
+
+    def borderline(ids_changed: Sequence[str]) -> bool:
+        return bool(ids_changed) and all(
+            nv.is_borderline(q_of.get(i), level_q) or nv.is_borderline(q_before.get(i), level_q)
+            for i in ids_changed
+        )
+
     groups = []
+    named_ids: set[str] = set(high_ids)
+    high_groups: list[list[str]] = []
     for group in transitions.groups_now:
         match = next((c for c in transitions.changes if tuple(c.ids_now) == tuple(group.ids) and c.label is group.label), None)
-        movement = _movement(match, names) if (match is not None and transitions.compared) else ""
+        movement = ""
+        if match is not None and transitions.compared:
+            changed = list(match.added) + list(match.removed) if match.kind != "appeared" else list(match.ids_now)
+            movement = nv.movement_phrase(
+                kind=match.kind,
+                n_before=len(match.ids_before),
+                added=[names[i] for i in match.added],
+                removed=[names[i] for i in match.removed],
+                borderline=borderline(changed),
+            )
         groups.append((group.label.value, [names[i] for i in group.ids], movement))
-    correction = (
-        f"Benjamini–Hochberg false discovery rate q = {config.analysis.fdr_q:g}"
-        if config.analysis.correction == "fdr_bh"
-        else f"unadjusted p ≤ {config.analysis.alpha:g}"
-    )
+        named_ids.update(group.ids)
+        if match is not None and transitions.compared:
+            named_ids.update(match.removed)
+        if group.label.value == "high-high":
+            high_groups.append([names[i] for i in group.ids])
+    correction = nv.correction_phrase(correction=a.correction, fdr_q=a.fdr_q, alpha=a.alpha)
     vanished = [c for c in transitions.changes if c.kind == "vanished"] if transitions.compared else []
+    variable = mt.variable_words(a.cluster_variable)
     cluster = nv.cluster_sentence(
         assessable=assessable,
         reason=" ".join(clusters.notes) or "the values do not vary between districts.",
         groups=groups,
         correction=correction,
+        variable=variable,
     )
     if vanished and assessable:
-        cluster += " " + "; ".join(
-            f"The {c.label.value} cluster of last week ({nv.join_names([names[i] for i in c.ids_before])})"
-            " is no longer significant."
+        cluster += " " + " ".join(
+            nv.vanished_sentence(c.label.value, [names[i] for i in c.ids_before], borderline=borderline(list(c.ids_before)))
             for c in vanished
         )
-    dq = nv.data_quality_sentence(
-        n_warnings=len(validation.warnings), highlights=_quality_highlights(validation)
-    )
+        for c in vanished:
+            named_ids.update(c.ids_before)
+    highlights = _quality_highlights(validation)
+    dq = nv.data_quality_sentence(n_warnings=len(validation.warnings), highlights=highlights)
+    dq_section = nv.data_quality_sentence(n_warnings=len(validation.warnings), highlights=highlights, in_section=True)
     key_messages = (level + " " + change, thresholds, tercile, cluster, dq)
 
-    indicators = _indicators(analysis, seasonal, config)
-    district_rows = tuple(_district_rows(analysis, seasonal))
-    top = sorted(
+    unsettled = bool(
+        seasonal.threshold_band and seasonal.threshold_band[0] <= j.ili_percent <= seasonal.threshold_band[1]
+    )
+    draft_messages = (
+        pl.plain_level(week_number=week.week, dates=dates, jurisdiction=config.report.jurisdiction, pct=j.ili_percent)
+        + " " + pl.plain_change(verdict=verdict, pct_before=j.prior_ili_percent, rising_for=rising_for),
+        pl.plain_season(pct=j.ili_percent, threshold=seasonal.epidemic_threshold, digits=digits, unsettled=unsettled),
+        pl.plain_highest(ranked=[(names[i], pct_of[i]) for i in high_ids], digits=digits),
+        pl.plain_groups(high_groups=high_groups, name_groups=config.report.draft_names_groups),
+        pl.plain_quality(
+            revised=any(f.rule.startswith("revision") for f in validation.warnings),
+            n_warnings=len(validation.warnings),
+            completeness_drop=completeness_drop,
+        ),
+    )
+
+    indicators = _indicators(analysis, seasonal, config, verdict, digits)
+    district_rows = tuple(_district_rows(analysis, seasonal, a.change_alpha, digits))
+    ranked_rows = sorted(
         (r for r in district_rows if not r.suppressed and not math.isnan(r.sort_pct)),
         key=lambda r: (-r.sort_pct, r.name.casefold()),
-    )[: config.report.top_districts_in_pdf]
+    )
+    top_ids = {r.district_id for r in ranked_rows[: config.report.top_districts_in_pdf]}
+    top = [r for r in ranked_rows if r.district_id in top_ids or r.district_id in named_ids]
+    top += [r for r in district_rows if r.district_id in named_ids and r not in top]
     quality = tuple(
         QualityItem(
             severity=g.severity.value,
             rule=g.rule,
             location=g.location(),
             district=_group_districts(g.districts(), names),
-            message=g.message(),
+            message=g.message(span=False, full_list="validation.json").replace(" -> ", " → "),
         )
         for g in ValidationReport(validation.warnings).grouped()
     )
     table_file = next((f for f in inputs if f.role == "table"), None)
-    data_as_of = (
-        f"extract {table_file.path.name} (SHA-256 {table_file.sha256[:12]})" if table_file else ""
+    data_as_of = nv.data_as_of(
+        latest_day=f"{week.end.day} {week.end:%B %Y}", file_name=table_file.path.name if table_file else ""
     )
-    a = config.analysis
-    methods = (
-        ("ILI percentage", f"ILI visits divided by all outpatient visits, per district and pooled over districts for {config.report.jurisdiction} (pooled ratio, not a population-weighted mean). {a.interval.title()} {a.confidence:.0%} intervals from unrounded counts. Districts with fewer than {a.min_visits} visits are suppressed in displays."),
-        ("Week-over-week change", f"This week against last week's revised value, in percentage points, with a Newcombe hybrid score interval. Test: {a.change_test}; a change is called an increase or decrease only when p < {a.change_alpha:g} and the change is at least {a.min_change_pp:g} percentage points."),
-        ("Terciles", "Cut points are the 1/3 and 2/3 quantiles (linear interpolation) of this week's non-suppressed district values; classes are closed on the right and tied values share a class. The same cut points class the earlier weeks in the small multiples."),
-        ("Spatial weights", f"{a.weights.title()} contiguity, row-standardised" + (f", islands linked to their {a.link_islands_k} nearest districts" if a.link_islands_k else "") + f"; {analysis.graph.n_links} links; districts with no neighbour: {nv.join_names([names.get(i, i) for i in analysis.graph.islands], limit=20)} (never tested)."),
-        ("Local Moran's I", f"esda {clusters.esda_version} Moran_Local on ILI%, {clusters.permutations:,} conditional permutations, seed {clusters.seed}; pseudo p-value {clusters.alternative}. Multiple testing: {correction}; a district is flagged when its adjusted p-value is at most the threshold. Local values use esda's scaling (n−1)·z_i·(Wz)_i/Σz², which changes neither p-values nor quadrants. Districts without data or with too few visits are left out of the statistic; districts with no neighbour are never tested (a permutation test cannot be run for them)."),
-        ("Global Moran's I", _global_text(analysis)),
-        ("Seasonal thresholds", seasonal.method_note),
-        ("Week numbering", f"{week.system.label}; season {seasonal.season_label} starts in week {config.weeks.season_start_week}. Some years have a week 53."),
-    ) + ((("Maps and distances", projection),) if projection else ())
+    g = analysis.global_moran
+    mem = seasonal.mem
+    settings = mt.MethodSettings(
+        jurisdiction=config.report.jurisdiction,
+        confidence=conf,
+        interval=a.interval,
+        min_visits=a.min_visits,
+        change_test=a.change_test,
+        change_alpha=a.change_alpha,
+        min_change_pp=a.min_change_pp,
+        weights=a.weights,
+        knn_k=a.knn_k,
+        link_islands_k=a.link_islands_k,
+        n_links=analysis.graph.n_links,
+        islands=[names.get(i, i) for i in analysis.graph.islands],
+        cluster_variable=a.cluster_variable,
+        permutations=clusters.permutations,
+        seed=clusters.seed,
+        correction=a.correction,
+        fdr_q=a.fdr_q,
+        alpha=a.alpha,
+        global_text=nv.global_moran_text(
+            available=bool(getattr(g, "available", True)),
+            i=_f(g.i),
+            expectation=_f(g.expectation),
+            p_sim=_f(g.p_sim),
+            n=int(g.n),
+            notes=tuple(g.notes),
+        ),
+        seasonal_text=mt.seasonal_method_text(
+            max_seasons=config.seasonal.mem_max_seasons,
+            delta=config.seasonal.mem_delta,
+            form=config.seasonal.mem_form,
+            onset_weeks=config.seasonal.onset_weeks,
+            season_start_week=config.weeks.season_start_week,
+            window_end_week=seasonal.window_end_week,
+            baseline_sd=config.seasonal.baseline_sd,
+            baseline_seasons_used=seasonal.baseline_seasons_used,
+            baseline_weeks=seasonal.baseline_weeks,
+            baseline_reason=seasonal.baseline_note,
+            sd_floor_pp=config.seasonal.aberration_sd_floor_pp,
+            seasons_used=tuple(mem.seasons_used) if mem is not None and mem.available else (),
+        ),
+        week_system=week.system.label,
+        season_label=seasonal.season_label,
+        season_start_week=config.weeks.season_start_week,
+    )
+    methods = mt.methods_sections(settings) + ((("Maps and distances", projection),) if projection else ())
+    previous = [v for v in seasonal.previous_visits if v > 0]
+    usual = float(sorted(previous)[len(previous) // 2]) if len(previous) >= 3 else None
+    cautions = mt.cautions(
+        confidence=conf,
+        case_definition=mt.case_definition_sentence(config.report.case_definition),
+        coverage=mt.coverage_sentence(
+            n_sites=j.reporting_sites if math.isfinite(_f(j.reporting_sites)) else None,
+            n_reporting=j.n_districts_reporting,
+            n_total=j.n_districts_total,
+        ),
+        completeness=mt.completeness_sentence(
+            visits_now=int(j.total_visits), visits_usual=usual, weeks=len(previous)
+        ),
+    )
     plain = (
-        ("This week", level + " " + change),
-        ("Compared with the season", thresholds),
-        ("Where activity is highest", tercile),
-        ("Clusters", cluster),
-        ("Data quality", dq),
+        ("This week", draft_messages[0]),
+        ("Compared with the season", draft_messages[1]),
+        ("Where levels are highest", draft_messages[2] + " " + draft_messages[3]),
+        ("About the figures", draft_messages[4]),
     )
+    report_version = str(version) if version is not None else config.report.version
     return ReportContext(
         title=config.report.title,
         jurisdiction=config.report.jurisdiction,
@@ -293,7 +417,7 @@ def build_context(
         season_label=seasonal.season_label,
         season_week=seasonal.season_week,
         data_as_of=data_as_of,
-        report_version=config.report.version,
+        report_version=report_version,
         page_size=config.report.page_size,
         key_messages=key_messages,
         indicators=indicators,
@@ -301,13 +425,13 @@ def build_context(
         districts=district_rows,
         districts_pdf=tuple(top),
         districts_pdf_note=(
-            f"The {len(top)} districts with the highest ILI% this week; the full table of "
-            f"{len(district_rows)} districts is in the HTML report and results.csv."
+            f"The {len(top)} districts with the highest ILI% this week or named above, highest first; the "
+            f"full table of {len(district_rows)} districts is in the HTML report and results.csv."
         ),
-        quality_summary=dq,
+        quality_summary=dq_section,
         quality=quality,
         methods=methods,
-        cautions=CAUTIONS,
+        cautions=cautions,
         contact=config.report.contact,
         versions=tuple(sorted(versions.items())),
         inputs=tuple((f.role, f.path.name, f.sha256) for f in inputs),
@@ -321,43 +445,23 @@ def build_context(
         ),
         analysis_notes=tuple(dict.fromkeys(analysis.notes)),
         reissue_note=(
-            f"This is version {reissue[0]} of the week {week.week} report; it supersedes version "
-            f"{reissue[0] - 1}. Reason: {reissue[1]}"
-            if reissue
-            else ""
+            nv.reissue_note(version=reissue[0], week_number=week.week, reason=reissue[1]) if reissue else ""
         ),
+        draft_key_messages=draft_messages,
+        ci_heading=f"{fm.confidence_label(conf)} CI",
+        build_time=build_time,
     )
 
 
-def _movement(change: Any, names: Mapping[str, str]) -> str:
-    kind = change.kind
-    before = len(change.ids_before)
-    if kind == "appeared":
-        return "new this week"
-    if kind == "grew":
-        return f"grown from {nv.plural(before, 'district')} last week"
-    if kind == "shrank":
-        return f"down from {nv.plural(before, 'district')} last week"
-    if kind == "moved":
-        parts = []
-        if change.added:
-            parts.append(f"gained {nv.join_names([names[i] for i in change.added], limit=4)}")
-        if change.removed:
-            parts.append(f"lost {nv.join_names([names[i] for i in change.removed], limit=4)}")
-        return "which since last week has " + " and ".join(parts) if parts else "shifted since last week"
-    if kind == "persisted":
-        return "unchanged from last week"
-    return ""
-
-
-def _global_text(analysis: WeekAnalysis) -> str:
-    g = analysis.global_moran
-    if not getattr(g, "available", True) or not math.isfinite(_f(g.i)):
-        return "Not computed this week: " + " ".join(g.notes)
-    return (
-        f"I = {g.i:.3f} (expected {g.expectation:.3f} under no spatial autocorrelation), "
-        f"permutation p = {g.p_sim:.3f}, over {g.n} districts with data."
-    )
+def context_digits(analysis: WeekAnalysis, seasonal: SeasonalContext) -> int:
+    """Decimals for district ILI% and cut points this week (see :func:`~sitrep.render.wording.formats.class_digits`)."""
+    table = analysis.table
+    values = [
+        _f(v) for v, sup in zip(table["ili_percent"], table["suppressed"], strict=True) if not bool(sup)
+    ]
+    cuts = tuple(analysis.terciles.cuts) if analysis.terciles.cuts else ()
+    others = [x for x in (seasonal.epidemic_threshold, seasonal.baseline) if x is not None]
+    return fm.class_digits(values, cuts, others=others)
 
 
 def _group_districts(ids: tuple[str, ...], names: dict[str, str]) -> str:
@@ -375,34 +479,47 @@ def _quality_highlights(validation: ValidationReport) -> list[str]:
     return [nv.quality_highlight(rule, n) for rule, n in order][:4]
 
 
-def _indicators(analysis: WeekAnalysis, seasonal: SeasonalContext, config: Config) -> tuple[IndicatorRow, ...]:
+def _indicators(
+    analysis: WeekAnalysis, seasonal: SeasonalContext, config: Config, verdict: str, digits: int
+) -> tuple[IndicatorRow, ...]:
     j = analysis.jurisdiction
+    conf = fm.confidence_label(config.analysis.confidence)
     prior_label = f"week {analysis.prior_week.week}" if analysis.prior_week else "last week"
-    revised_note = ""
-    if math.isfinite(_f(j.prior_ili_percent_published)) and math.isfinite(_f(j.prior_ili_percent)):
-        revised_note = (
-            f"revised from {nv.fmt_pct(j.prior_ili_percent_published)} as published last week"
-            if round(j.prior_ili_percent_published, 1) != round(j.prior_ili_percent, 1)
-            else "unchanged by revisions"
-        )
+    revised_note = nv.revision_note(published=j.prior_ili_percent_published, revised=j.prior_ili_percent)
     rows = [
-        IndicatorRow("ILI% this week", nv.fmt_pct(j.ili_percent), f"95% CI {nv.fmt_interval(j.ci_low, j.ci_high)}; {nv.fmt_count(j.ili_visits)} of {nv.fmt_count(j.total_visits)} visits"),
-        IndicatorRow(f"ILI% {prior_label} (revised)", nv.fmt_pct(j.prior_ili_percent), revised_note),
-        IndicatorRow("Change", nv.fmt_pp(j.change_pp), f"95% CI {nv.fmt_num(j.change_low_pp)} to {nv.fmt_num(j.change_high_pp)}; {j.change_class.value}"),
-        IndicatorRow("Districts reporting", f"{j.n_districts_reporting} of {j.n_districts_total}", f"{nv.fmt_count(j.reporting_sites)} reporting sites" if math.isfinite(_f(j.reporting_sites)) else ""),
+        IndicatorRow("ILI% this week", fm.fmt_pct(j.ili_percent), f"{conf} CI {fm.fmt_interval(j.ci_low, j.ci_high)}; {fm.fmt_count(j.ili_visits)} of {fm.fmt_count(j.total_visits)} visits"),
+        IndicatorRow(f"ILI% {prior_label} (revised)", fm.fmt_pct(j.prior_ili_percent), revised_note),
+        IndicatorRow("Change", fm.fmt_pp(j.change_pp), f"{conf} CI {fm.fmt_interval(j.change_low_pp, j.change_high_pp, ' pp')}; {verdict}"),
+        IndicatorRow("Districts reporting", f"{j.n_districts_reporting} of {j.n_districts_total}", nv.reporting_note(j.reporting_sites if math.isfinite(_f(j.reporting_sites)) else None)),
     ]
     if seasonal.same_week_past:
         label, value = seasonal.same_week_past[-1]
-        rows.append(IndicatorRow(f"Same week, season {label}", nv.fmt_pct(value), f"season week {seasonal.season_week}"))
-    rows.append(IndicatorRow("Seasonal baseline", nv.fmt_pct(seasonal.baseline), seasonal.baseline_note))
+        rows.append(IndicatorRow(f"Same week, season {label}", fm.fmt_pct(value), f"season week {seasonal.season_week}"))
+    baseline_note = (
+        f"mean + {config.seasonal.baseline_sd:g} SD of ILI% outside the epidemic periods of the last "
+        f"{seasonal.baseline_seasons_used} seasons ({seasonal.baseline_weeks} weeks)"
+        if seasonal.baseline_seasons_used
+        else seasonal.baseline_note
+    )
+    rows.append(IndicatorRow("Seasonal baseline", fm.fmt_pct(seasonal.baseline, digits), baseline_note))
     if seasonal.thresholds_available:
-        rows.append(IndicatorRow("Epidemic threshold", nv.fmt_pct(seasonal.epidemic_threshold), f"intensity this week: {seasonal.intensity}"))
-        rows.append(IndicatorRow("Intensity thresholds", f"{nv.fmt_pct(seasonal.medium)} / {nv.fmt_pct(seasonal.high)} / {nv.fmt_pct(seasonal.very_high)}", "medium / high / very high"))
+        window = (
+            f"; season window weeks {config.weeks.season_start_week} to {seasonal.window_end_week}"
+            if seasonal.window_end_week
+            else ""
+        )
+        band = (
+            f"; {fm.fmt_pct(seasonal.threshold_band[0], digits)} to {fm.fmt_pct(seasonal.threshold_band[1], digits)} by season window"
+            if seasonal.threshold_band
+            else ""
+        )
+        rows.append(IndicatorRow("Epidemic threshold", fm.fmt_pct(seasonal.epidemic_threshold, digits), f"intensity this week: {seasonal.intensity}{window}{band}"))
+        rows.append(IndicatorRow("Intensity thresholds", f"{fm.fmt_pct(seasonal.medium)} / {fm.fmt_pct(seasonal.high)} / {fm.fmt_pct(seasonal.very_high)}", "medium / high / very high"))
     else:
-        rows.append(IndicatorRow("Epidemic threshold", nv.NOT_AVAILABLE, seasonal.thresholds_reason))
+        rows.append(IndicatorRow("Epidemic threshold", fm.NOT_AVAILABLE, seasonal.thresholds_reason))
     if seasonal.season_peak is not None:
         peak_week, peak_pct = seasonal.season_peak
-        rows.append(IndicatorRow("Season peak so far", nv.fmt_pct(peak_pct), f"week {peak_week.week}"))
+        rows.append(IndicatorRow("Season peak so far", fm.fmt_pct(peak_pct), f"week {peak_week.week}"))
     if seasonal.onset_week is not None:
         rows.append(IndicatorRow("Season onset", f"week {seasonal.onset_week.week}", f"first of {config.seasonal.onset_weeks} consecutive weeks at or above the epidemic threshold"))
     return tuple(rows)
@@ -411,7 +528,9 @@ def _indicators(analysis: WeekAnalysis, seasonal: SeasonalContext, config: Confi
 _TERCILE = {0: "no data", 1: "low", 2: "middle", 3: "high"}
 
 
-def _district_rows(analysis: WeekAnalysis, seasonal: SeasonalContext) -> list[DistrictRow]:
+def _district_rows(
+    analysis: WeekAnalysis, seasonal: SeasonalContext, change_alpha: float, digits: int
+) -> list[DistrictRow]:
     rows = []
     for rec in analysis.table.to_dict("records"):
         suppressed = bool(rec["suppressed"])
@@ -425,21 +544,29 @@ def _district_rows(analysis: WeekAnalysis, seasonal: SeasonalContext) -> list[Di
         show = not suppressed and math.isfinite(pct)
         change_pp = _f(rec["change_pp"])
         if rec.get("change_from_zero") and show:
-            change_text = f"from 0 to {nv.fmt_pct(pct)}"
+            change_text = f"from 0 to {fm.fmt_pct(pct, digits)}"
         else:
-            change_text = nv.fmt_pp(change_pp).replace(" percentage points", " pp") if show else "—"
+            change_text = fm.fmt_pp(change_pp).replace(" percentage points", " pp") if show else "—"
+        verdict = nv.change_verdict(
+            change_class=str(rec["change_class"]),
+            p_value=_f(rec["change_p"]),
+            alpha=change_alpha,
+            diff_pp=change_pp,
+            low_pp=_f(rec["change_low_pp"]),
+            high_pp=_f(rec["change_high_pp"]),
+        )
         flags = seasonal.district_flags.get(rec["district_id"], "")
         rows.append(
             DistrictRow(
                 district_id=str(rec["district_id"]),
                 name=str(rec["district_name"]),
-                sites=nv.fmt_count(rec["reporting_sites"]) if math.isfinite(_f(rec["reporting_sites"])) else "—",
-                ili_visits=nv.fmt_count(rec["ili_visits"]) if show else ("suppressed" if suppressed and math.isfinite(total) else "—"),
-                total_visits=nv.fmt_count(rec["total_visits"]) if math.isfinite(total) else "—",
-                ili_pct=nv.fmt_pct(pct) if show else ("suppressed" if suppressed and math.isfinite(total) else "no data"),
-                ci=nv.fmt_interval(_f(rec["ci_low"]), _f(rec["ci_high"])) if show else "—",
+                sites=fm.fmt_count(rec["reporting_sites"]) if math.isfinite(_f(rec["reporting_sites"])) else "—",
+                ili_visits=fm.fmt_count(rec["ili_visits"]) if show else ("suppressed" if suppressed and math.isfinite(total) else "—"),
+                total_visits=fm.fmt_count(rec["total_visits"]) if math.isfinite(total) else "—",
+                ili_pct=fm.fmt_pct(pct, digits) if show else ("suppressed" if suppressed and math.isfinite(total) else "no data"),
+                ci=fm.fmt_interval(_f(rec["ci_low"]), _f(rec["ci_high"])) if show else "—",
                 change=change_text,
-                change_class=str(rec["change_class"]) if show else "not assessable",
+                change_class=verdict if show else "not assessable",
                 tercile=_TERCILE[int(rec["tercile"])],
                 cluster=str(rec["cluster_label"]),
                 transition=str(rec["transition"] or ""),

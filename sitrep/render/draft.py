@@ -23,7 +23,7 @@ from sitrep.render.html import render_text
 
 __all__ = ["markdown_text", "render_docx", "render_email_body", "render_markdown"]
 
-_MD_ESCAPE = re.compile(r"([\\\[\]])")
+_MD_ESCAPE = re.compile(r"([\\\[\]<&])")
 _CONTROL = re.compile(r"[\x00-\x1f\x7f\u2028\u2029]")
 
 
@@ -33,12 +33,15 @@ def markdown_text(text: str) -> str:
     Every control character (C0 controls such as TAB, CR, LF, and DEL, plus
     the Unicode line and paragraph separators) becomes a space, so a value
     cannot start a new Markdown block (a heading, a list item or a link
-    reference definition); then ``\``, ``[`` and ``]`` are backslash-escaped,
-    so no link or image can be formed (CommonMark 0.31, "Backslash escapes").
-    HTML is handled by the template's autoescaping, not here.
+    reference definition); then ``\``, ``[``, ``]``, ``<`` and ``&`` are
+    backslash-escaped, so no link, image, raw HTML tag or entity can be formed
+    (CommonMark 0.31, "Backslash escapes"); other characters, such as ``>`` in
+    ``->``, stay as they are.
 
     >>> markdown_text("[x](javascript:alert(1))")
     '\\[x\\](javascript:alert(1))'
+    >>> markdown_text("<b>A & B</b> -> C")
+    '\\<b>A \\& B\\</b> -> C'
     >>> markdown_text("North\nEast")
     'North East'
     """
@@ -63,46 +66,59 @@ def render_markdown(context: ReportContext, template_dir: Path | None = None) ->
     """The draft as Markdown (template ``draft.md.j2``).
 
     Every string of the context first goes through :func:`markdown_text`
-    (link syntax escaped, control characters made spaces). The template is
-    then rendered with HTML escaping on; quotes and ampersands are restored,
-    since they are harmless in Markdown, while ``<`` and ``>`` stay as entities
-    so a name holding markup shows literally in any Markdown viewer.
+    (Markdown's own escaping: link, tag and entity syntax escaped, control
+    characters made spaces); the template is rendered without HTML escaping,
+    so ``->`` stays ``->`` and a name holding markup shows literally.
     """
-    text = render_text("draft.md.j2", template_dir, c=_markdown_safe(context))
-    return text.replace("&#39;", "'").replace("&#34;", '"').replace("&amp;", "&")
+    return render_text("draft.md.j2", template_dir, escape_html=False, c=_markdown_safe(context))
 
 
 def render_email_body(context: ReportContext, template_dir: Path | None = None) -> str:
-    """Plain-text e-mail body (template ``email.txt.j2``); plain text, so HTML entities are undone."""
-    import html
-
-    return html.unescape(render_text("email.txt.j2", template_dir, c=context))
+    """Plain-text e-mail body (template ``email.txt.j2``): plain text needs no escaping."""
+    return render_text("email.txt.j2", template_dir, escape_html=False, c=context)
 
 
 def render_docx(context: ReportContext) -> bytes:
-    """The draft as a Word document (python-docx), with fixed core properties for reproducibility."""
+    """The draft as a Word document built on the project's reference document.
+
+    The styles (fonts, heading colours) come from the packaged
+    ``draft-reference.docx`` (made by ``tools/make_draft_reference.py``); the
+    file properties carry the title, the jurisdiction (subject), the report
+    week and version (keywords) and the build time (``context.build_time``,
+    from ``SOURCE_DATE_EPOCH``), so a rebuild gives the same bytes.
+    """
     import docx
 
-    document = docx.Document()
+    from sitrep.render.html import asset_dir
+
+    document = docx.Document(str(asset_dir() / "draft-reference.docx"))
     props = document.core_properties
-    fixed = dt.datetime(context.week_year, 1, 1, tzinfo=dt.UTC)
-    props.created = fixed
-    props.modified = fixed
+    if context.build_time:
+        stamp = dt.datetime.fromisoformat(context.build_time.replace("Z", "+00:00"))
+    else:
+        stamp = dt.datetime(context.week_year, 1, 1, tzinfo=dt.UTC)
+    props.created = stamp
+    props.modified = stamp
     props.last_modified_by = "sitrep"
     props.author = "sitrep"
-    props.title = f"{context.jurisdiction}: ILI week {context.week_number}, {context.week_year}"
+    props.title = f"{context.jurisdiction}: influenza-like illness, week {context.week_number}, {context.week_year}"
+    props.subject = context.jurisdiction
+    props.keywords = f"ILI; week {context.week_label}; version {context.report_version}"
+    props.comments = context.draft_intro
     props.revision = 1
     document.add_heading(
         f"{context.jurisdiction}: influenza-like illness, week {context.week_number} ({context.week_dates})",
         level=1,
     )
+    document.add_paragraph(context.draft_intro, style="Draft Note")
     document.add_paragraph(
-        "DRAFT for communications staff. Numbers come from the report of the same week; "
-        "keep them unchanged when editing."
+        f"Report version {context.report_version} · {context.week_system} · data as of {context.data_as_of}",
+        style="Draft Note",
     )
-    document.add_heading("Key messages", level=2)
-    for message in context.key_messages:
-        document.add_paragraph(message, style="List Bullet")
+    if context.reissue_note:
+        paragraph = document.add_paragraph()
+        paragraph.add_run("Reissued. ").bold = True
+        paragraph.add_run(context.reissue_note)
     for heading, text in context.plain_sections:
         document.add_heading(heading, level=2)
         document.add_paragraph(text)

@@ -28,8 +28,11 @@ def asset_dir() -> Path:
     return Path(str(importlib.resources.files("sitrep.assets")))
 
 
-def environment(template_dir: Path | None = None) -> jinja2.Environment:
+def environment(template_dir: Path | None = None, *, escape_html: bool = True) -> jinja2.Environment:
     """A strict, escaping environment over ``template_dir`` (packaged templates by default).
+
+    ``escape_html=False`` is for formats that are not HTML (Markdown, plain
+    text), whose callers escape values in their own syntax first.
 
     A custom folder is searched first; templates it lacks fall back to the
     packaged ones, so a team can override just one file.
@@ -41,7 +44,7 @@ def environment(template_dir: Path | None = None) -> jinja2.Environment:
         folders.insert(0, str(template_dir))
     return jinja2.Environment(
         loader=jinja2.FileSystemLoader(folders),
-        autoescape=True,
+        autoescape=escape_html,  # noqa: S701 - off only for Markdown and plain text, escaped by their callers
         undefined=jinja2.StrictUndefined,
         trim_blocks=True,
         lstrip_blocks=True,
@@ -76,9 +79,15 @@ def render_html(context: ReportContext, template_dir: Path | None = None, *, for
         raise RenderError(f"report template failed: {exc}") from exc
 
 
-def render_text(name: str, template_dir: Path | None = None, **values: object) -> str:
-    """Render a text template (e.g. the draft) with the same strict, escaping environment."""
+def render_text(
+    name: str, template_dir: Path | None = None, *, escape_html: bool = True, **values: object
+) -> str:
+    """Render a text template (e.g. the draft) with the same strict environment.
+
+    ``escape_html=False`` leaves values as they are: the caller has escaped
+    them for the output format (Markdown escaping, or none for plain text).
+    """
     try:
-        return environment(template_dir).get_template(name).render(**values)
+        return environment(template_dir, escape_html=escape_html).get_template(name).render(**values)
     except jinja2.TemplateError as exc:
         raise RenderError(f"template {name} failed: {exc}") from exc

@@ -111,9 +111,9 @@ LEGEND_LABELS: dict[str, dict[str, str]] = {
         "0": "No data / suppressed",
     },
     "change": {
-        ChangeClass.INCREASE.value: "Increase",
-        ChangeClass.SIMILAR.value: "Similar (no clear change)",
-        ChangeClass.DECREASE.value: "Decrease",
+        ChangeClass.INCREASE.value: "Clear increase",
+        ChangeClass.SIMILAR.value: "No clear or only a small change",
+        ChangeClass.DECREASE.value: "Clear decrease",
         ChangeClass.NOT_ASSESSABLE.value: "Not assessable",
     },
     "cluster": {
@@ -137,7 +137,7 @@ LEGEND_LABELS: dict[str, dict[str, str]] = {
 points) come from :func:`tercile_labels`. Keys of ``change`` and ``cluster``
 are the :class:`~sitrep.model.ChangeClass` and
 :class:`~sitrep.model.ClusterLabel` values. The change and cluster legends
-add the number of districts in each class, e.g. "Increase (4)".
+add the number of districts in each class, e.g. "Clear increase (4)".
 """
 
 _MAX_PANELS = 8
@@ -500,13 +500,16 @@ def format_cut(value: float, decimals: int = 1) -> str:
     return text[1:] if text.startswith("-") and float(text) == 0 else text
 
 
-def tercile_labels(cuts: tuple[float, float] | None, suppressed_label: str) -> dict[int, str]:
+def tercile_labels(
+    cuts: tuple[float, float] | None, suppressed_label: str, decimals: int | None = None
+) -> dict[int, str]:
     """The printed legend label of each tercile rank.
 
     Ranks follow the analysis' (a, b] classes: rank 1 is ILI% <= the first
     cut, rank 2 above it up to the second cut, rank 3 above the second cut.
-    Cuts are printed with 1 decimal; if both round to the same text they are
-    printed with 2 so that the labels stay distinct.
+    Cuts are printed with ``decimals`` decimals (the caller chooses enough to
+    keep the printed values on the right side of them); by default 1, or 2
+    when both round to the same text, so that the labels stay distinct.
 
     Parameters
     ----------
@@ -539,7 +542,8 @@ def tercile_labels(cuts: tuple[float, float] | None, suppressed_label: str) -> d
         raise RenderError(
             f"tercile cuts must be two finite numbers in increasing order, got {cuts!r}"
         )
-    decimals = 1 if format_cut(low) != format_cut(high) else 2
+    if decimals is None:
+        decimals = 1 if format_cut(low) != format_cut(high) else 2
     a, b = format_cut(low, decimals), format_cut(high, decimals)
     return {
         1: f"{words['1']} (≤ {a}%)",
@@ -556,6 +560,7 @@ def tercile_small_multiples(
     *,
     suppressed_label: str,
     width_cm: float = 17.0,
+    decimals: int | None = None,
 ) -> Figure:
     """ILI% tercile maps of the last weeks side by side, on one fixed legend.
 
@@ -596,7 +601,7 @@ def tercile_small_multiples(
     if not 1 <= len(panels) <= _MAX_PANELS:
         raise RenderError(f"small multiples need 1 to {_MAX_PANELS} panels, got {len(panels)}")
     geometry = _prepare(geoms)
-    labels = tercile_labels(cuts, suppressed_label)
+    labels = tercile_labels(cuts, suppressed_label, decimals)
     ranks_per_panel: list[list[int]] = []
     for title, ranks in panels:
         arr = np.asarray(ranks)
@@ -674,7 +679,7 @@ def change_map(
 
     Fills: increase rust, similar linen, decrease sea-green with horizontal
     stripes, not assessable white with diagonal hatching. The legend names
-    each class in words with its number of districts, e.g. "Increase (4)".
+    each class in words with its number of districts, e.g. "Clear increase (4)".
 
     Parameters
     ----------

@@ -11,8 +11,6 @@ from __future__ import annotations
 import base64
 import dataclasses
 import math
-from collections import Counter
-from collections.abc import Sequence
 
 import numpy as np
 
@@ -21,7 +19,8 @@ from sitrep.analysis.week import WeekAnalysis
 from sitrep.model import ClusterLabel, Districts
 from sitrep.render import charts, maps
 from sitrep.render.figures import figure_style, figure_to_png, figure_to_svg
-from sitrep.render.narrative import fmt_pct, join_names, plural
+from sitrep.render.wording import captions as cap
+from sitrep.render.wording.methods import variable_words
 
 __all__ = ["FigureItem", "ReportFigures", "draw_report_figures"]
 
@@ -70,15 +69,14 @@ def _item(key: str, title: str, caption: str, alt: str, fig: object) -> FigureIt
     )
 
 
-def _count_phrase(values: Sequence[str], order: Sequence[str]) -> str:
-    counts = Counter(values)
-    return ", ".join(plural(counts[v], "district") + f" {v}" for v in order if counts[v])
-
-
 def draw_report_figures(
-    analysis: WeekAnalysis, seasonal: SeasonalContext, districts: Districts
+    analysis: WeekAnalysis, seasonal: SeasonalContext, districts: Districts, *, digits: int = 1
 ) -> ReportFigures:
-    """Draw the trend chart and the four maps of the report."""
+    """Draw the trend chart and the four maps of the report.
+
+    ``digits`` prints the tercile cut points (see
+    :func:`sitrep.render.wording.formats.class_digits`).
+    """
     table = analysis.table
     order = {d: i for i, d in enumerate(districts.frame["district_id"])}
     index = [order[d] for d in table["district_id"]]
@@ -92,34 +90,21 @@ def draw_report_figures(
         cuts = analysis.terciles.cuts
         panels = [(f"Week {w.week}", np.asarray(ranks)) for w, ranks in analysis.recent_terciles]
         fig = maps.tercile_small_multiples(
-            geoms, panels, cuts, suppressed_label="no data or suppressed"
+            geoms, panels, cuts, suppressed_label="no data or suppressed", decimals=digits
         )
         ranks = np.asarray(analysis.terciles.ranks)
         labels = {0: "no data", 1: "low", 2: "middle", 3: "high"}
-        counts = _count_phrase([labels[int(r)] for r in ranks], ["low", "middle", "high", "no data"])
-        cut_text = f"cut points {fmt_pct(cuts[0])} and {fmt_pct(cuts[1])}" if cuts else "no cut points (too few districts)"
+        counts = cap.count_phrase([labels[int(r)] for r in ranks], ["low", "middle", "high", "no data"])
         first = analysis.recent_terciles[0][0].week if analysis.recent_terciles else week.week
-        items.append(_item(
-            "terciles",
-            f"ILI% terciles, weeks {first} to {week.week}",
-            f"Each district's ILI% in thirds, on this week's {cut_text} for every panel. "
-            "Hatched districts had no data or too few visits.",
-            f"Small-multiple maps of ILI% terciles for weeks {first} to {week.week} on {cut_text}; "
-            f"in week {week.week}: {counts}.",
-            fig,
-        ))
+        items.append(_item("terciles", *cap.tercile_caption(
+            first_week=first, week=week.week, cuts=cuts, digits=digits, counts=counts
+        ), fig))
 
         classes = [str(c) for c in table["change_class"]]
         fig = maps.change_map(geoms, classes, title=None, width_cm=8.4)
-        counts = _count_phrase(classes, ["increase", "decrease", "similar", "not assessable"])
-        items.append(_item(
-            "change",
-            f"Change since week {analysis.prior_week.week if analysis.prior_week else week.week - 1}",
-            "Week-over-week change of each district's ILI% against last week's revised value, "
-            "classed by the change test and the minimum meaningful change.",
-            f"Map of week-over-week change classes: {counts}.",
-            fig,
-        ))
+        counts = cap.count_phrase(classes, ["increase", "decrease", "similar", "not assessable"])
+        prior = analysis.prior_week.week if analysis.prior_week else week.week - 1
+        items.append(_item("change", *cap.change_caption(prior_week=prior, counts=counts), fig))
 
         cluster_labels = [str(c) for c in table["cluster_label"]]
         fig = maps.cluster_map(geoms, cluster_labels, title=None, width_cm=8.4)
@@ -127,19 +112,11 @@ def draw_report_figures(
         for label in (ClusterLabel.HIGH_HIGH, ClusterLabel.LOW_LOW, ClusterLabel.HIGH_LOW, ClusterLabel.LOW_HIGH):
             members = [n for n, lab in zip(names, cluster_labels, strict=True) if lab == label.value]
             if members:
-                groups.append(f"{label.value}: {join_names(members, limit=6)}")
-        others = _count_phrase(cluster_labels, ["not significant", "no neighbours", "no data", "not assessable"])
-        items.append(_item(
-            "clusters",
-            "Local Moran's I clusters",
-            "Districts whose ILI% resembles (high-high, low-low) or contrasts with (high-low, low-high) "
-            "their neighbours' more than chance would suggest, after multiple-testing control. "
-            "Districts with no neighbour are never tested.",
-            "Map of Local Moran's I cluster labels. "
-            + ("; ".join(groups) + ". " if groups else "No significant districts. ")
-            + (f"Other districts: {others}." if others else ""),
-            fig,
-        ))
+                groups.append((label.value, members))
+        others = cap.count_phrase(cluster_labels, ["not significant", "no neighbours", "no data", "not assessable"])
+        items.append(_item("clusters", *cap.cluster_caption(
+            variable=variable_words(analysis.settings.cluster_variable), groups=groups, others=others
+        ), fig))
 
         last = np.array([_display(v, s) for v, s in zip(table["prior_ili_percent"], table["suppressed"], strict=True)])
         now = np.array([_display(v, s) for v, s in zip(table["ili_percent"], table["suppressed"], strict=True)])
@@ -147,16 +124,9 @@ def draw_report_figures(
             geoms, last, now,
             titles=(f"Week {analysis.prior_week.week if analysis.prior_week else ''} (revised)", f"Week {week.week}"),
         )
-        finite_now = now[np.isfinite(now)]
-        finite_last = last[np.isfinite(last)]
-        items.append(_item(
-            "comparison",
-            "Last week and this week",
-            "ILI% by district last week (revised) and this week on one shared scale.",
-            "Two maps of district ILI% on one scale: last week from "
-            f"{_range(finite_last)}, this week from {_range(finite_now)}.",
-            fig,
-        ))
+        items.append(_item("comparison", *cap.comparison_caption(
+            last_range=_range(last[np.isfinite(last)]), now_range=_range(now[np.isfinite(now)])
+        ), fig))
     return ReportFigures(tuple(items))
 
 
@@ -170,8 +140,8 @@ def _display(value: object, suppressed: object) -> float:
 
 def _range(values: np.ndarray) -> str:
     if values.size == 0:
-        return "no data"
-    return f"{fmt_pct(float(values.min()))} to {fmt_pct(float(values.max()))}"
+        return cap.value_range(None, None)
+    return cap.value_range(float(values.min()), float(values.max()))
 
 
 def _trend(analysis: WeekAnalysis, seasonal: SeasonalContext) -> FigureItem:
@@ -189,23 +159,15 @@ def _trend(analysis: WeekAnalysis, seasonal: SeasonalContext) -> FigureItem:
         season_start_week=_season_start(analysis, seasonal),
     )
     peaks = [float(np.nanmax(v)) for _, v in past if np.isfinite(v).any()]
-    now = current[-1] if current.size else math.nan
-    alt = (
-        f"Line chart of pooled ILI% by season week. This season ({seasonal.season_label}) is at "
-        f"{fmt_pct(now)} in season week {seasonal.season_week}"
-        + (f"; the {len(past)} past seasons peaked between {fmt_pct(min(peaks))} and {fmt_pct(max(peaks))}" if peaks else "")
-        + (f"; epidemic threshold {fmt_pct(seasonal.epidemic_threshold)}" if seasonal.thresholds_available else "")
-        + (f"; baseline {fmt_pct(seasonal.baseline)}" if seasonal.baseline is not None else "")
-        + "."
-    )
-    return _item(
-        "trend",
-        "ILI% this season against past seasons",
-        "Pooled ILI% for the jurisdiction by week of the season; this season in bold, past seasons in grey, "
-        "with the seasonal baseline and the epidemic and intensity thresholds.",
-        alt,
-        fig,
-    )
+    now = float(current[-1]) if current.size else math.nan
+    return _item("trend", *cap.trend_caption(
+        season_label=seasonal.season_label,
+        season_week=seasonal.season_week,
+        now=now,
+        past_peaks=peaks,
+        threshold=seasonal.epidemic_threshold if seasonal.thresholds_available else None,
+        baseline=seasonal.baseline,
+    ), fig)
 
 
 def _season_start(analysis: WeekAnalysis, seasonal: SeasonalContext) -> int:

@@ -1,0 +1,115 @@
+"""Figure titles, captions and alternative texts (pure functions of plain values)."""
+
+from __future__ import annotations
+
+from collections import Counter
+from collections.abc import Sequence
+
+from sitrep.render.wording.formats import fmt_pct, join_names, plural
+
+__all__ = [
+    "change_caption",
+    "cluster_caption",
+    "comparison_caption",
+    "count_phrase",
+    "tercile_caption",
+    "trend_caption",
+]
+
+
+def count_phrase(values: Sequence[str], order: Sequence[str]) -> str:
+    """``'3 districts high, 1 district no data'`` in the given class order (empty classes left out)."""
+    counts = Counter(values)
+    return ", ".join(plural(counts[v], "district") + f" {v}" for v in order if counts[v])
+
+
+def tercile_caption(
+    *, first_week: int, week: int, cuts: tuple[float, float] | None, digits: int, counts: str
+) -> tuple[str, str, str]:
+    """(title, caption, alt) of the tercile small multiples; cut points printed with ``digits``."""
+    cut_text = (
+        f"cut points {fmt_pct(cuts[0], digits)} and {fmt_pct(cuts[1], digits)}"
+        if cuts
+        else "no cut points (too few districts)"
+    )
+    return (
+        f"ILI% terciles, weeks {first_week} to {week}",
+        f"Each district's ILI% in thirds, on this week's {cut_text} for every panel "
+        "(a value equal to a cut point is in the lower third). Hatched districts had no data or too few visits.",
+        f"Small-multiple maps of ILI% terciles for weeks {first_week} to {week} on {cut_text}; "
+        f"in week {week}: {counts}.",
+    )
+
+
+def change_caption(*, prior_week: int, counts: str) -> tuple[str, str, str]:
+    """(title, caption, alt) of the change map."""
+    return (
+        f"Change since week {prior_week}",
+        "Week-over-week change of each district's ILI% against last week's revised value: a clear "
+        "increase or decrease is detectable by the change test and at least the minimum meaningful change.",
+        f"Map of week-over-week change classes: {counts}.",
+    )
+
+
+def cluster_caption(*, variable: str, groups: Sequence[tuple[str, Sequence[str]]], others: str) -> tuple[str, str, str]:
+    """(title, caption, alt) of the cluster map; ``groups`` holds (label, names) of significant districts."""
+    listed = "; ".join(f"{label}: {join_names(names, limit=6)}" for label, names in groups)
+    return (
+        "Local Moran's I clusters",
+        f"Districts whose {variable} resembles (high-high, low-low) or contrasts with (high-low, low-high) "
+        "their neighbours' more than chance would suggest, after multiple-testing control. "
+        "Districts with no neighbour are never tested.",
+        "Map of Local Moran's I cluster labels. "
+        + (listed + ". " if listed else "No significant districts. ")
+        + (f"Other districts: {others}." if others else ""),
+    )
+
+
+def comparison_caption(*, last_range: str, now_range: str) -> tuple[str, str, str]:
+    """(title, caption, alt) of the two-week comparison maps."""
+    return (
+        "Last week and this week",
+        "ILI% by district last week (revised) and this week on one shared scale.",
+        f"Two maps of district ILI% on one scale: last week from {last_range}, this week from {now_range}.",
+    )
+
+
+def value_range(low: float | None, high: float | None) -> str:
+    """``'1.2% to 3.4%'`` or 'no data'."""
+    if low is None or high is None:
+        return "no data"
+    return f"{fmt_pct(low)} to {fmt_pct(high)}"
+
+
+def trend_caption(
+    *,
+    season_label: str,
+    season_week: int,
+    now: float,
+    past_peaks: Sequence[float],
+    threshold: float | None,
+    baseline: float | None,
+) -> tuple[str, str, str]:
+    """(title, caption, alt) of the trend chart."""
+    alt = (
+        f"Line chart of pooled ILI% by season week. This season ({season_label}) is at "
+        f"{fmt_pct(now)} in season week {season_week}"
+        + (
+            f"; the {len(past_peaks)} past seasons peaked between {fmt_pct(min(past_peaks))} and "
+            f"{fmt_pct(max(past_peaks))}"
+            if past_peaks
+            else ""
+        )
+        + (f"; epidemic threshold {fmt_pct(threshold)}" if threshold is not None else "")
+        + (f"; baseline {fmt_pct(baseline)}" if baseline is not None else "")
+        + "."
+    )
+    return (
+        "ILI% this season against past seasons",
+        "Pooled ILI% for the jurisdiction by week of the season; this season in bold, past seasons in grey, "
+        "with the seasonal baseline and the epidemic and intensity thresholds.",
+        alt,
+    )
+
+
+__all__ += ["value_range"]
