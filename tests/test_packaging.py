@@ -66,6 +66,12 @@ def test_wheel_ships_every_template_font_and_demo_input(wheel: Path) -> None:
         assert expected, folder
         missing = sorted(f"{inside}/{f}" for f in expected if f"{inside}/{f}" not in names)
         assert missing == [], f"not in the wheel: {missing}"
+    # every Python module of the source tree, so a new subpackage cannot be left out of the list
+    # in [tool.setuptools] packages
+    modules = {f"sitrep/{f}" for f in _source_files("sitrep") if f.endswith(".py")}
+    assert modules, "no modules found"
+    missing = sorted(m for m in modules if m not in names)
+    assert missing == [], f"modules not in the wheel: {missing}"
     # the files named in the brief by hand too, so an emptied folder cannot pass
     for name in ("sitrep/templates/sort_table.js", "sitrep/templates/report.html.j2",
                  "sitrep/demo_inputs/sitrep.toml", "sitrep/demo_inputs/districts.gpkg",
