@@ -1,4 +1,4 @@
-"""Shared harness of the hardening tests (RELIABILITY.md §2 H1-H25 and §3).
+"""Shared harness of the hardening tests (docs/faults.md F1-F25).
 
 Everything here is invented for the tests: a small grid of square districts in
 EPSG:32630 (UTM zone 30N), a season-to-date extract for MMWR weeks 2026-W40 to
@@ -32,7 +32,7 @@ HEADER = ("district_id", "district_name", "epi_week", "reporting_sites", "ili_vi
 CELL = 10_000.0  # metres
 ORIGIN = (500_000.0, 5_500_000.0)  # EPSG:32630
 FORBIDDEN = re.compile(r"\b(nan|NaN|inf|Infinity|None|undefined)\b|\{\{|\}\}|\{%|%\}")
-"""Placeholders and missing numbers that must never reach a reader (RELIABILITY.md §3 scanners)."""
+"""Placeholders and missing numbers that must never reach a reader (docs/faults.md F5, F18)."""
 
 
 # --------------------------------------------------------------------------- the invented week

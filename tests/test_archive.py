@@ -1,7 +1,7 @@
 """Tests of sitrep.deliver.archive: immutable, atomic, confined, verifiable bundles.
 
-Fault references are RELIABILITY.md H8 (half-written files, overwrite), H12
-(path traversal) and H19 (SOURCE_DATE_EPOCH).
+Fault references are docs/faults.md F8 (half-written files, overwrite), F12
+(path traversal) and F19 (SOURCE_DATE_EPOCH).
 """
 
 from __future__ import annotations
@@ -245,7 +245,7 @@ def test_non_json_types_in_manifest_are_converted(tmp_path: Path) -> None:
     assert manifest["path"] == "/data/x.csv" and manifest["system"] == "iso"
 
 
-# --------------------------------------------------------------------------- atomicity (H8)
+# --------------------------------------------------------------------------- atomicity (F8)
 
 
 def leftovers(week_dir: Path) -> list[str]:
@@ -323,7 +323,7 @@ def test_race_on_final_name_is_archive_exists(
 
 
 def test_existing_file_content_is_never_replaced_even_as_root(tmp_path: Path) -> None:
-    """Exclusive create refuses an existing file although root ignores chmod (RELIABILITY E2)."""
+    """Exclusive create refuses an existing file although root ignores chmod (docs/faults.md L2)."""
     target = tmp_path / "f.txt"
     target.write_bytes(b"published")
     target.chmod(0o444)
@@ -332,7 +332,7 @@ def test_existing_file_content_is_never_replaced_even_as_root(tmp_path: Path) ->
     assert target.read_bytes() == b"published"
 
 
-# --------------------------------------------------------------------------- confinement (H12)
+# --------------------------------------------------------------------------- confinement (F12)
 
 
 BAD_NAMES = [
@@ -516,7 +516,7 @@ def test_write_outputs_replaces_atomically(tmp_path: Path, monkeypatch: pytest.M
     assert tree(folder) == {"b.txt": b"three", "sub/a.txt": b"one"}  # old file intact, no temp
 
 
-# --------------------------------------------------------------------------- SOURCE_DATE_EPOCH (H19)
+# --------------------------------------------------------------------------- SOURCE_DATE_EPOCH (F19)
 
 
 def test_source_date_epoch_from_week_end() -> None:

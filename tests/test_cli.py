@@ -2,8 +2,8 @@
 
 Exit codes are the table in ``sitrep.cli`` and ``sitrep.errors`` (0 done, 1 blocked,
 2 usage or configuration, 3 delivery). E-mail goes to a real SMTP server (aiosmtpd)
-bound to 127.0.0.1 on a free port; fault references RELIABILITY.md H11 (b, c, f),
-H17 (every offending cell named by file, line and column) and H8 (verify). The demo
+bound to 127.0.0.1 on a free port; fault references docs/faults.md F11 (b, c, f),
+F17 (every offending cell named by file, line and column) and F8 (verify). The demo
 week comes from the session fixture ``demo_build`` (tests/conftest.py); every test
 that changes a bundle works on its own copy.
 """
@@ -159,7 +159,7 @@ def test_check_broken_table_names_file_line_and_column(
     lines = W47.read_text(encoding="utf-8").splitlines()
     target = line_of(W47, "012", "2026-W47")
     cells = lines[target - 1].split(",")
-    cells[4] = str(int(cells[5]) + 7)  # ILI visits above all visits (RELIABILITY.md H17)
+    cells[4] = str(int(cells[5]) + 7)  # ILI visits above all visits (docs/faults.md F17)
     lines[target - 1] = ",".join(cells)
     bad.write_text("\n".join(lines) + "\n", encoding="utf-8")
 
@@ -300,7 +300,7 @@ def test_send_dry_run_writes_eml_beside_the_bundle(
 def test_send_of_a_blocked_bundle_exits_1_and_sends_nothing(
     bundle: Path, tmp_path: Path, capsys: pytest.CaptureFixture[str]
 ) -> None:
-    # A complete, checksummed bundle whose validation result blocks the run (RELIABILITY.md H11 f).
+    # A complete, checksummed bundle whose validation result blocks the run (docs/faults.md F11 f).
     manifest = json.loads((bundle / "manifest.json").read_text())
     for key in ("bundle", "files", "reissue"):
         manifest.pop(key, None)

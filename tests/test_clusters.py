@@ -262,7 +262,7 @@ def test_same_seed_same_result_other_seed_differs(
 
 
 # ---------------------------------------------------------------------------
-# Islands, missing data, zero variance (RELIABILITY.md H1, H4)
+# Islands, missing data, zero variance (docs/faults.md F1, F4)
 
 
 def test_island_on_5x5_lattice_is_never_tested() -> None:
@@ -292,7 +292,7 @@ def test_island_on_5x5_lattice_is_never_tested() -> None:
 
 def test_esda_alone_would_flag_the_island() -> None:
     # Documents the pitfall guarded against above: esda 2.9.0 gives an island p = 1/(R+1)
-    # (docs/methods.md §5.5, RELIABILITY.md [E4]); if this ever changes, revisit clusters.py.
+    # (docs/methods.md §5.5, docs/faults.md L4); if this ever changes, revisit clusters.py.
     import warnings
 
     nb = _lattice_neighbours(5, 5)
@@ -438,7 +438,7 @@ def test_subgraph_input_keeps_working(
 
 
 # ---------------------------------------------------------------------------
-# Reproducibility across processes (RELIABILITY.md H19)
+# Reproducibility across processes (docs/faults.md F19)
 
 
 _CHILD = textwrap.dedent(

@@ -2,8 +2,8 @@
 
 The run is driven through the CLI (``cli.main([...])`` in-process) against a real
 SMTP server (aiosmtpd) bound to 127.0.0.1 on a free port. Fault references:
-RELIABILITY.md H6 (archive unchanged after a blocked week, hashed), H8 (no
-overwrite; reissue writes v<k+1>), H11 (f: nothing sent for a blocked run; c: a
+docs/faults.md F6 (archive unchanged after a blocked week, hashed), F8 (no
+overwrite; reissue writes v<k+1>), F11 (f: nothing sent for a blocked run; c: a
 connection lost after DATA is "unknown" and never resent automatically, RFC 1047).
 Epi-week dates are checked against the ``epiweeks`` package (MMWR calendar).
 The demo week is built once for the module (about 8 s) and once more for the reissue.

@@ -278,7 +278,7 @@ def test_blocked_run_leaves_earlier_outputs_untouched(demo_build, tmp_path: Path
 
 
 def test_two_processes_give_byte_identical_bundles(tmp_path: Path) -> None:
-    """Same inputs, seed and config in two processes with different PYTHONHASHSEED (RELIABILITY H19)."""
+    """Same inputs, seed and config in two processes with different PYTHONHASHSEED (docs/faults.md F19)."""
     script = (
         "import sys, datetime as dt; sys.path.insert(0, 'tests');"
         "from pathlib import Path; from conftest import demo_config; from sitrep import pipeline;"

@@ -1,7 +1,7 @@
 """Hardening, what goes out: the archive, e-mail, output paths, resource limits, and empty
 inputs.
 
-RELIABILITY.md §2 items H8, H11, H12, H20 and H23, through ``pipeline.build`` and
+docs/faults.md items F8, F11, F12, F20 and F23, through ``pipeline.build`` and
 ``cli.main`` on the invented week of ``hardening_helpers``, with a loopback SMTP server
 (aiosmtpd on 127.0.0.1) and a loopback canary HTTP server. References: POSIX rename and
 ``O_EXCL`` semantics (Python ``os`` docs), GNU coreutils ``sha256sum -c`` (the archive's
@@ -52,7 +52,7 @@ def leftovers(folder: Path) -> list[Path]:
     return [p for p in folder.rglob("*") if p.name.startswith(".tmp-") or p.name.endswith(".tmp")]
 
 
-# --------------------------------------------------------------------------- H8
+# --------------------------------------------------------------------------- F8
 
 
 def test_h08_failed_pdf_leaves_nothing_behind(tmp_path: Path) -> None:
@@ -139,7 +139,7 @@ def test_h08_archive_is_complete_or_absent_and_never_overwritten(
             (folder / "manifest-sha256.txt").read_text().splitlines())
 
 
-# --------------------------------------------------------------------------- H11
+# --------------------------------------------------------------------------- F11
 
 
 def test_h11_mail_goes_out_only_for_a_clean_run_and_reports_refusals(tmp_path: Path) -> None:
@@ -178,7 +178,7 @@ def test_h11_mail_goes_out_only_for_a_clean_run_and_reports_refusals(tmp_path: P
     assert code == 2 and "control character" in err
 
 
-# --------------------------------------------------------------------------- H12
+# --------------------------------------------------------------------------- F12
 
 
 @pytest.mark.parametrize("name", ["../../x", "/etc/cron.d/x", "sub/../../x", "a\x00b", "..%2Fx",
@@ -232,7 +232,7 @@ def test_h12_a_refused_output_folder_archives_nothing(escaping: types.SimpleName
     assert tree_hashes(escaping.week.archive) == {}
 
 
-# --------------------------------------------------------------------------- H20
+# --------------------------------------------------------------------------- F20
 
 
 def test_h20_oversized_inputs_are_refused_before_parsing(
@@ -279,7 +279,7 @@ def test_h20_pdf_render_is_bounded_in_time() -> None:
     assert "timeout_s=None" not in (ROOT / "sitrep" / "pipeline.py").read_text(encoding="utf-8")
 
 
-# --------------------------------------------------------------------------- H23
+# --------------------------------------------------------------------------- F23
 
 
 @pytest.mark.parametrize(("content", "rule"), [(b"", "file-empty"),

@@ -1,7 +1,7 @@
 """Hardening, what comes in: ids, CRS, geometry, encodings, duplicates, impossible values,
 Unicode normalisation, and random tables fed to `sitrep check`.
 
-RELIABILITY.md §2 items H2, H13, H14, H15, H16, H17 and H22, plus the property-based test
+docs/faults.md items F2, F13, F14, F15, F16, F17 and F22, plus the property-based test
 of the Hardening issue. Every table is the invented week of ``hardening_helpers`` with one
 thing changed; findings are asserted through ``sitrep check --json`` (``cli.main``) or the
 reader itself. References: RFC 4180 (CSV), RFC 7946 (GeoJSON is WGS 84 lon/lat; bbox order
@@ -67,7 +67,7 @@ def line_of(rows: list[list[str]], ident: str, label: str) -> int:
     return next(i + 2 for i, r in enumerate(rows) if r[0] == ident and r[2] == label)
 
 
-# --------------------------------------------------------------------------- H2
+# --------------------------------------------------------------------------- F2
 
 
 def test_h02_unmatched_ids_are_listed_with_lines_and_nothing_is_lost(
@@ -169,7 +169,7 @@ def test_h02_a_district_without_a_row_is_kept_and_labelled_not_reported(tmp_path
     assert csv_row["total_visits"] == "" and csv_row["ili_percent"] == ""
 
 
-# --------------------------------------------------------------------------- H13
+# --------------------------------------------------------------------------- F13
 
 
 def _geojson(frame: Any, path: Path, *, swap: bool = False) -> Path:
@@ -249,7 +249,7 @@ def test_h13_crs_errors_are_refused_and_a_reprojection_changes_nothing(
             assert any("measured in metres" in note for note in b.notes)
 
 
-# --------------------------------------------------------------------------- H14
+# --------------------------------------------------------------------------- F14
 
 
 def test_h14_bad_geometry_is_named_before_any_neighbour_is_built(
@@ -322,7 +322,7 @@ def test_h14_shrunk_polygons_never_give_a_no_clusters_claim(tmp_path: Path) -> N
     assert any(f.rule == "geometry-gap" for f in result.validation.warnings)
 
 
-# --------------------------------------------------------------------------- H15
+# --------------------------------------------------------------------------- F15
 
 
 def test_h15_bom_crlf_latin1_and_decimal_comma_follow_declared_rules(
@@ -378,7 +378,7 @@ def test_h15_bom_crlf_latin1_and_decimal_comma_follow_declared_rules(
     np.testing.assert_allclose(got, expected, rtol=0, atol=1e-9)
 
 
-# --------------------------------------------------------------------------- H16, H17
+# --------------------------------------------------------------------------- F16, F17
 
 
 def test_h16_duplicate_rows_and_duplicate_headers_are_errors(week: Any, tmp_path: Path) -> None:
@@ -429,7 +429,7 @@ def test_h17_every_impossible_value_is_listed_in_one_report(week: Any, tmp_path:
     }
 
 
-# --------------------------------------------------------------------------- H22
+# --------------------------------------------------------------------------- F22
 
 
 def test_h22_nfd_table_matches_nfc_boundaries(tmp_path: Path) -> None:

@@ -1,7 +1,7 @@
 """Hardening, what readers receive: hostile district names through every output, fetches by
 the PDF engine, formula injection, glyph coverage, strict templates, reproducibility, PDF/A.
 
-RELIABILITY.md §2 items H3, H9, H10, H18, H19, H21 and H24, each asserted on the real
+docs/faults.md items F3, F9, F10, F18, F19, F21 and F24, each asserted on the real
 outputs of ``pipeline.build`` (and ``sitrep send --dry-run`` for the e-mail) for an
 invented week whose boundary names carry the attack. References: the WHATWG HTML
 parsing model as implemented by Python's ``html.parser`` (what a browser would run);
@@ -50,7 +50,7 @@ pytestmark = pytest.mark.slow
 
 ROOT = Path(__file__).resolve().parents[1]
 CANARY_BYTES = b"CANARY-3b9e-LOCAL-SECRET"
-TRIGGERS = ("=", "+", "-", "@", "\t", "\r", "\n")  # OWASP ASVS 1.2.10 + CR/LF (RELIABILITY §1.3)
+TRIGGERS = ("=", "+", "-", "@", "\t", "\r", "\n")  # OWASP ASVS 1.2.10 + CR/LF (docs/faults.md F9)
 
 
 def hostile_names(canary: Canary, secret: Path) -> list[str]:
@@ -105,7 +105,7 @@ def hostile(tmp_path_factory: pytest.TempPathFactory) -> types.SimpleNamespace:
     )
 
 
-# --------------------------------------------------------------------------- H3
+# --------------------------------------------------------------------------- F3
 
 
 def test_h03_pdf_embeds_no_local_file_and_fetches_nothing(hostile: types.SimpleNamespace) -> None:
@@ -147,7 +147,7 @@ def test_h03_url_fetcher_allows_only_data_and_own_assets(tmp_path: Path) -> None
     font.close()
 
 
-# --------------------------------------------------------------------------- H9
+# --------------------------------------------------------------------------- F9
 
 
 def test_h09_formula_cells_are_neutralised_in_every_csv(hostile: types.SimpleNamespace) -> None:
@@ -195,7 +195,7 @@ def test_h09_tab_cr_lf_prefixes_are_neutralised(hostile: types.SimpleNamespace) 
     assert [r["district_name"] for r in rows[: len(odd)]] == ["'" + v for v in odd[:-1]] + ["plain"]
 
 
-# --------------------------------------------------------------------------- H10
+# --------------------------------------------------------------------------- F10
 
 
 def test_h10_names_cannot_become_markup_in_html_pdf_docx_or_mail(
@@ -255,7 +255,7 @@ def test_h10_every_environment_escapes_and_no_template_marks_data_safe() -> None
     from sitrep.render.html import environment
 
     env = environment()
-    assert env.autoescape is True  # not select_autoescape(): RELIABILITY [E2], .j2 files
+    assert env.autoescape is True  # not select_autoescape(): docs/faults.md L2, .j2 files
     for path in sorted((ROOT / "templates").glob("*")):
         if path.suffix in (".j2", ".js", ".css"):
             text = path.read_text(encoding="utf-8")
@@ -265,7 +265,7 @@ def test_h10_every_environment_escapes_and_no_template_marks_data_safe() -> None
         assert not re.search(r"autoescape\s*=\s*False|Markup\(|select_autoescape", text), path
 
 
-# --------------------------------------------------------------------------- H18
+# --------------------------------------------------------------------------- F18
 
 
 def test_h18_every_template_fails_loudly_on_a_missing_field(hostile: types.SimpleNamespace) -> None:
@@ -307,7 +307,7 @@ def test_h18_every_template_fails_loudly_on_a_missing_field(hostile: types.Simpl
             assert failures, f"{template} renders without c.{field} (a silent blank)"
 
 
-# --------------------------------------------------------------------------- H21 and H19
+# --------------------------------------------------------------------------- F21 and F19
 
 GLYPH_NAMES = [
     "Ελληνικό Κέντρο",
@@ -421,7 +421,7 @@ def test_h19_outputs_are_byte_identical_across_processes(glyphs: types.SimpleNam
 def test_h19_empty_source_date_epoch_is_replaced_or_rejected_by_the_cli(
     glyphs: types.SimpleNamespace,
 ) -> None:
-    """SOURCE_DATE_EPOCH="" ([E3]): same bundle as an unset variable, or a clear refusal."""
+    """SOURCE_DATE_EPOCH="" (docs/faults.md L3): same bundle as an unset variable, or a clear refusal."""
     week = glyphs.week
     third = _second_config(week, "c")
     env = {**os.environ, "SOURCE_DATE_EPOCH": ""}
@@ -446,13 +446,13 @@ def test_h19_empty_source_date_epoch_is_rejected_clearly(monkeypatch: pytest.Mon
         html_to_pdf("<p>x</p>", timeout_s=None)
 
 
-# --------------------------------------------------------------------------- H24
+# --------------------------------------------------------------------------- F24
 
 
 def test_h24_no_output_claims_pdf_a_without_a_validator(
     hostile: types.SimpleNamespace, glyphs: types.SimpleNamespace
 ) -> None:
-    """No veraPDF here: with the default configuration nothing may say PDF/A (RELIABILITY §1.6)."""
+    """No veraPDF here: with the default configuration nothing may say PDF/A (docs/faults.md F24, L5)."""
     assert shutil.which("verapdf") is None  # if a validator appears, this test must be revisited
     for run in (hostile, glyphs):
         assert run.week.config().output.pdf_variant is None

@@ -1,10 +1,10 @@
 """Hardening, the numbers: islands, NaN and zero-variance weeks, data-quality breaks, week
 sequencing, revisions of last week, and dependency drift.
 
-RELIABILITY.md §2 items H1, H4, H5, H6, H7 and H25 (and the display half of H17). The
+docs/faults.md items F1, F4, F5, F6, F7 and F25 (and the display half of F17). The
 "naive behaviour" each test guards against is shown where it can be: esda 2.9.0 called
 directly gives an island p = 1/(R+1) and one NaN turns every local I into NaN
-(RELIABILITY [E4]). References: esda's own published test values on libpysal's bundled
+(docs/faults.md L4). References: esda's own published test values on libpysal's bundled
 ``desmith`` data (esda/tests/test_moran.py, TestMoranLocal); the local Moran formula of
 Anselin (1995) in esda's (n - 1) scaling; statsmodels' Benjamini-Hochberg
 (``multipletests(method="fdr_bh")``); ``datetime.date.isocalendar()`` for ISO 8601 weeks.
@@ -77,7 +77,7 @@ def plain(tmp_path_factory: pytest.TempPathFactory) -> types.SimpleNamespace:
     return types.SimpleNamespace(week=week, result=result, out=read_outputs(result))
 
 
-# --------------------------------------------------------------------------- H1
+# --------------------------------------------------------------------------- F1
 
 
 def test_h01_island_and_orphaned_district_are_never_clusters(plain: types.SimpleNamespace) -> None:
@@ -116,7 +116,7 @@ def test_h01_island_and_orphaned_district_are_never_clusters(plain: types.Simple
     assert next(d for d in districts if d["district_id"] == week.ids[-1])["p_value"] is None
 
 
-# --------------------------------------------------------------------------- H4
+# --------------------------------------------------------------------------- F4
 
 
 def _flat_latest(rows: list[list[str]]) -> list[list[str]]:
@@ -168,7 +168,7 @@ def test_h04_district_without_data_is_dropped_with_a_warning(tmp_path: Path) -> 
     assert "could not be assessed" not in result.context.key_messages[3]
 
 
-# --------------------------------------------------------------------------- H5 (and H17 display)
+# --------------------------------------------------------------------------- F5 (and F17 display)
 
 
 def _h5_table(rows: list[list[str]]) -> list[list[str]]:
@@ -263,7 +263,7 @@ def test_h17_zero_denominator_district_is_shown_without_a_rate(
         quality.result.analysis.clusters.ids.index("D07")] is ClusterLabel.NO_DATA
 
 
-# --------------------------------------------------------------------------- H6
+# --------------------------------------------------------------------------- F6
 
 
 def test_h06_weeks_out_of_order_block_and_leave_the_archive_untouched(
@@ -336,7 +336,7 @@ def test_h06_mixed_weeks_in_a_file_declared_weekly_are_errors(tmp_path: Path) ->
     assert all(f.line is not None and f.column == "epi_week" for f in mixed)
 
 
-# --------------------------------------------------------------------------- H7
+# --------------------------------------------------------------------------- F7
 
 
 def test_h07_revised_last_week_is_reported_and_archive_keeps_history(tmp_path: Path) -> None:
@@ -367,7 +367,7 @@ def test_h07_revised_last_week_is_reported_and_archive_keeps_history(tmp_path: P
     assert "revised from" in result.context.key_messages[0]  # which W46 value the change uses
 
 
-# --------------------------------------------------------------------------- H25
+# --------------------------------------------------------------------------- F25
 
 
 def test_h25_pinned_versions_and_golden_local_moran_values() -> None:
@@ -403,7 +403,7 @@ def test_h25_pinned_versions_and_golden_local_moran_values() -> None:
     z = y - y.mean()
     lag = np.array([z[[ids.index(j) for j in nb[i]]].mean() for i in ids])
     expected = (len(y) - 1) * z * lag / (z @ z)
-    np.testing.assert_allclose(result.local_i, expected, atol=1e-6)  # tolerance: RELIABILITY H25
+    np.testing.assert_allclose(result.local_i, expected, atol=1e-6)  # tolerance: docs/faults.md F25
     # esda's published values for this data, R = 99, seed 12345 (esda/tests/test_moran.py)
     lm = esda_local(y, nb)
     np.testing.assert_allclose(lm.z_sim[0], -0.6990291160835514)

@@ -1,6 +1,6 @@
 """Tests of sitrep.deliver.mail against a real SMTP server (aiosmtpd) on 127.0.0.1.
 
-Fault references: RELIABILITY.md H11 / [E6]. Reply-code classes follow RFC 5321
+Fault references: docs/faults.md F11, L6. Reply-code classes follow RFC 5321
 §4.2.1 (4yz transient, 5yz permanent); the lost-connection rule follows RFC 1047.
 Every server binds to the loopback interface on a free port and is stopped in
 a ``finally``; client timeouts are 5 s.

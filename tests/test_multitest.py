@@ -81,7 +81,7 @@ def test_random_p_values_equal_statsmodels(seed: int, level: float) -> None:
 
 
 def test_nan_is_not_counted_in_m() -> None:
-    # Islands / no-data districts carry NaN [RELIABILITY.md H1]: same decisions as the
+    # Islands / no-data districts carry NaN [docs/faults.md F1]: same decisions as the
     # 15-value family without them (m stays 15), NaN positions not rejected and adjusted NaN.
     p = np.insert(BH1995, [0, 7, 15], np.nan)
     nan_at = np.isnan(p)

@@ -1,7 +1,7 @@
 """Tests of sitrep.deliver.pdf: confined fetching, determinism, time bound.
 
-Fault references: RELIABILITY.md §1.1 [E1] (WeasyPrint fetched file:// and
-http:// resources, attached local files), H19/[E3] (SOURCE_DATE_EPOCH) and H20
+Fault references: docs/faults.md F3, L1 (WeasyPrint fetched file:// and
+http:// resources, attached local files), F19/L3 (SOURCE_DATE_EPOCH) and F20
 (bounded render time).
 """
 
@@ -129,7 +129,7 @@ def test_fetcher_refuses_network_without_a_request(canary: Canary, mode: str) ->
 
 
 def hostile_html(canary: Canary, secrets: dict[str, Path]) -> str:
-    """Markup an unescaped district name could smuggle in (RELIABILITY.md [E1])."""
+    """Markup an unescaped district name could smuggle in (docs/faults.md F3)."""
     return f"""<!doctype html><html><head>
 <link rel="attachment" href="{secrets["text"].as_uri()}">
 <link rel="attachment" href="file:///etc/hostname">
@@ -267,7 +267,7 @@ def test_unknown_variant_is_a_config_error() -> None:
 def test_bad_source_date_epoch_is_reported_clearly(
     monkeypatch: pytest.MonkeyPatch, raw: str
 ) -> None:
-    # [E3]: an empty SOURCE_DATE_EPOCH crashed write_pdf inside fontTools with a bare ValueError.
+    # docs/faults.md L3: an empty SOURCE_DATE_EPOCH crashed write_pdf inside fontTools with a bare ValueError.
     monkeypatch.setenv("SOURCE_DATE_EPOCH", raw)
     with pytest.raises(DeliveryError, match="SOURCE_DATE_EPOCH is set to"):
         html_to_pdf("<p>x</p>", timeout_s=None)

@@ -148,7 +148,7 @@ def test_result_is_read_only_and_bad_shapes_refused() -> None:
 @settings(max_examples=60, deadline=None, derandomize=True)
 @given(st.lists(st.one_of(st.floats(0, 30, allow_nan=False), st.just(NAN)), max_size=40))
 def test_ranks_are_ordered_and_ties_share(values: list[float]) -> None:
-    # Invariants [HAND, STYLE.md principle 14]: ranks in {0..3}; 0 exactly for NaN; a larger
+    # Invariants [HAND, common practice: property-style invariants]: ranks in {0..3}; 0 exactly for NaN; a larger
     # value never gets a lower rank; counts add up to the values with data.
     arr = np.array(values, dtype=float)
     result = tercile_ranks(arr)

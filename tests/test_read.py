@@ -92,7 +92,7 @@ def test_unsorted_file_is_sorted_by_week_then_id(tmp_path: Path) -> None:
     assert table.frame["line"].iloc[0] == len(rows) + 1  # (001, W44) was written last
 
 
-# ----------------------------------------------------------------------------- encodings (H15)
+# ----------------------------------------------------------------------------- encodings (F15)
 
 
 def test_bom_gives_identical_results(tmp_path: Path, clean: Path) -> None:
@@ -160,7 +160,7 @@ def test_rate_per_1000_is_converted_to_percent(tmp_path: Path) -> None:
     assert table.frame["rate_percent"].iloc[0] == pytest.approx(1.6667, abs=1e-4)
 
 
-# ----------------------------------------------------------------------------- ids (H2, H22)
+# ----------------------------------------------------------------------------- ids (F2, F22)
 
 
 def test_ids_are_text_stripped_and_nfc(tmp_path: Path) -> None:
@@ -328,7 +328,7 @@ def test_parquet_integer_ids_are_read_as_digits_fractions_are_errors(tmp_path: P
     assert table is None
 
 
-# ----------------------------------------------------------------------------- structure (H16, H23)
+# ----------------------------------------------------------------------------- structure (F16, F23)
 
 
 def test_empty_file(tmp_path: Path) -> None:
@@ -447,7 +447,7 @@ def test_unreadable_file_raises_input_error(tmp_path: Path, clean: Path) -> None
         clean.chmod(0o644)
 
 
-# ----------------------------------------------------------------------------- cells (H17)
+# ----------------------------------------------------------------------------- cells (F17)
 
 
 def test_every_bad_cell_is_listed_in_one_report(tmp_path: Path) -> None:

@@ -315,7 +315,7 @@ def test_rate_column_disagreeing_with_counts(tmp_path: Path) -> None:
         == ()
     )
     k = line_of(rows, "004", WEEKS[2]) - 2
-    rows[k][6] = f"{10 * float(rows[k][6]):.2f}"  # rate column x10 vs counts (RELIABILITY H5)
+    rows[k][6] = f"{10 * float(rows[k][6]):.2f}"  # rate column x10 vs counts (docs/faults.md F5)
     f = one(
         validate_table(table(tmp_path, rows, header, columns={"rate": "ili_pct"}), None, VS),
         "rate-mismatch",
@@ -506,7 +506,7 @@ def test_small_revision_gives_only_the_summary(tmp_path: Path) -> None:
 
 
 def test_large_revision_is_listed_with_old_and_new_values(tmp_path: Path) -> None:
-    # 003 in W45: ILI 18 -> 90 of 707 visits: 2.55 % -> 12.73 % (H7: several times larger)
+    # 003 in W45: ILI 18 -> 90 of 707 visits: 2.55 % -> 12.73 % (F7: several times larger)
     current = changed(clean_rows(), "003", WEEKS[1], "ili_visits", "90")
     cur, pri = prior_and_current(tmp_path, current_rows=current)
     report = validate_against_prior(cur, pri, VS)
@@ -537,7 +537,7 @@ def test_row_removed_from_a_past_week(tmp_path: Path) -> None:
 
 
 def test_completeness_drop(tmp_path: Path) -> None:
-    # total visits of W47 cut by 55 % (RELIABILITY H5); ILI visits stay below the totals
+    # total visits of W47 cut by 55 % (docs/faults.md F5); ILI visits stay below the totals
     current = clean_rows()
     for ident in IDS:
         k = line_of(current, ident, WEEKS[3]) - 2
