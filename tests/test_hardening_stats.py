@@ -92,7 +92,7 @@ def test_h01_island_and_orphaned_district_are_never_clusters(plain: types.Simple
     y[ids.index("island")] = 40.0  # an extreme value with nobody to compare with
     y[ids.index("tip")] = 35.0
     naive = esda_local(y, nb)
-    assert naive.p_sim[ids.index("island")] == pytest.approx(1 / 100)  # the fault [E4]
+    assert naive.p_sim[ids.index("island")] == pytest.approx(1 / 100)  # docs/faults.md F1, L4
 
     y[ids.index("r0c0")] = np.nan
     result = local_clusters(y, graph_from_neighbours(nb, ids=ids), permutations=99, seed=12345)
@@ -130,7 +130,7 @@ def test_h04_nan_is_left_out_and_zero_variance_is_not_assessable() -> None:
     y = np.array([float(i[1]) + 2 * float(i[3]) for i in ids])
     y[7] = np.nan
     naive = esda_local(np.where(np.arange(len(y)) == 7, np.nan, y), nb)
-    assert np.isnan(naive.Is).all()  # esda: one NaN makes every local I NaN [E4]
+    assert np.isnan(naive.Is).all()  # esda: one NaN makes every local I NaN (docs/faults.md F4)
     result = local_clusters(y, graph_from_neighbours(nb, ids=ids), permutations=99, seed=1)
     assert result.assessable and result.labels[7] is ClusterLabel.NO_DATA
     assert np.isfinite(np.delete(result.local_i, 7)).all()
