@@ -21,7 +21,7 @@ import jinja2.nodes
 
 from sitrep.errors import ConfigError
 from sitrep.render.context import DistrictRow, IndicatorRow, QualityItem, ReportContext
-from sitrep.render.html import packaged_template_dir
+from sitrep.render.html import environment, packaged_template_dir
 from sitrep.render.report_figures import FigureItem
 
 __all__ = ["TEMPLATES", "Template", "context_fields", "copy_templates", "templates_markdown"]
@@ -84,13 +84,19 @@ _ROWS = {
 """Context fields holding rows: their item type, whose fields a loop can use."""
 
 
-def _source(name: str) -> str:
-    return (packaged_template_dir() / name).read_text(encoding="utf-8")
+def context_fields(name: str, template_dir: Path | None = None) -> tuple[str, ...]:
+    """The ``c.<field>`` names a template uses, in order of first use (also via its includes).
 
+    Reads the packaged template, or the override in ``template_dir`` when it has one.
 
-def context_fields(name: str) -> tuple[str, ...]:
-    """The ``c.<field>`` names a packaged template uses, in order of first use (also via includes)."""
-    env = jinja2.Environment()
+    Raises
+    ------
+    jinja2.TemplateSyntaxError
+        If the template (or one it includes) cannot be parsed.
+    """
+    env = environment(template_dir)
+    loader = env.loader
+    assert loader is not None
     seen: list[str] = []
     pending = [name]
     done: set[str] = set()
@@ -99,7 +105,8 @@ def context_fields(name: str) -> tuple[str, ...]:
         if current in done:
             continue
         done.add(current)
-        tree = env.parse(_source(current))
+        source, filename, _ = loader.get_source(env, current)
+        tree = env.parse(source, current, filename)
         for node in tree.find_all(jinja2.nodes.Getattr):
             if isinstance(node.node, jinja2.nodes.Name) and node.node.name == "c" and node.attr not in seen:
                 seen.append(node.attr)
