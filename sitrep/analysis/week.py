@@ -17,6 +17,7 @@ The result, :class:`WeekAnalysis`, is what render receives.
 from __future__ import annotations
 
 import dataclasses
+from collections.abc import Callable
 from typing import TYPE_CHECKING
 
 import numpy as np
@@ -263,6 +264,10 @@ def _nan_sum(a: FloatArray) -> float:
     return float(a[present].sum()) if present.any() else float("nan")
 
 
+def _no_step(done: int, total: int) -> None:
+    """The default ``on_step`` of :func:`analyse_week`: nothing."""
+
+
 def analyse_week(
     current: CountTable,
     prior: CountTable | None,
@@ -272,6 +277,7 @@ def analyse_week(
     *,
     week: EpiWeek | None = None,
     recent_weeks: int = 4,
+    on_step: Callable[[int, int], None] | None = None,
 ) -> WeekAnalysis:
     """Compute every district and jurisdiction figure of one report week.
 
@@ -293,6 +299,10 @@ def analyse_week(
         The report week; default ``current.latest_week``.
     recent_weeks : int, default 4
         Number of weeks (ending with this one) in ``recent_terciles``.
+    on_step : callable, optional
+        Called as ``on_step(done, total)`` before and after each of the
+        permutation runs (this week's local and global statistics, last
+        week's local one), for a progress display; it cannot change a result.
 
     Returns
     -------
@@ -406,15 +416,21 @@ def analyse_week(
     eb_pct = 100.0 * eb_rates(x1, n1)
 
     # Clusters this week and last week, on the same graph and settings.
+    runs = 3 if before.has_data.any() else 2
+    step = on_step if on_step is not None else _no_step
+    step(0, runs)
     values = _cluster_values(settings, pct, eb_pct, usable)
     clusters = _local(values, dg, settings)
+    step(1, runs)
     gm = global_moran(values, dg, permutations=settings.permutations, seed=settings.seed)
+    step(2, runs)
     prior_clusters: ClusterResult | None = None
     if before.has_data.any():
         x0, n0 = before.ili, before.visits
         usable0 = before.has_data & (n0 >= settings.min_visits) & (n0 > 0)
         values0 = _cluster_values(settings, ili_percent(x0, n0), 100.0 * eb_rates(x0, n0), usable0)
         prior_clusters = _local(values0, dg, settings)
+        step(3, runs)
     transitions = compare_weeks(clusters, prior_clusters, dg)
     notes.extend(f"clusters: {n}" for n in clusters.notes)
 

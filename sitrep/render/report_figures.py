@@ -11,6 +11,7 @@ from __future__ import annotations
 import base64
 import dataclasses
 import math
+from collections.abc import Callable
 
 import numpy as np
 
@@ -70,12 +71,18 @@ def _item(key: str, title: str, caption: str, alt: str, fig: object) -> FigureIt
 
 
 def draw_report_figures(
-    analysis: WeekAnalysis, seasonal: SeasonalContext, districts: Districts, *, digits: int = 1
+    analysis: WeekAnalysis,
+    seasonal: SeasonalContext,
+    districts: Districts,
+    *,
+    digits: int = 1,
+    on_step: Callable[[int, int], None] | None = None,
 ) -> ReportFigures:
     """Draw the trend chart and the four maps of the report.
 
     ``digits`` prints the tercile cut points (see
-    :func:`sitrep.render.wording.formats.class_digits`).
+    :func:`sitrep.render.wording.formats.class_digits`); ``on_step(done,
+    total)`` hears of each figure drawn, for a progress display.
     """
     table = analysis.table
     order = {d: i for i, d in enumerate(districts.frame["district_id"])}
@@ -83,12 +90,22 @@ def draw_report_figures(
     geoms = districts.map_frame.geometry.iloc[index].reset_index(drop=True)
     names = list(table["district_name"])
     week = analysis.week
-    items = []
+    items: list[FigureItem] = []
+
+    def drawn(item: FigureItem) -> None:
+        items.append(item)
+        if on_step is not None:
+            on_step(len(items), _FIGURES)
+
+    if on_step is not None:
+        on_step(0, _FIGURES)
     with figure_style():
-        items.append(_trend(analysis, seasonal))
+        drawn(_trend(analysis, seasonal))
 
         cuts = analysis.terciles.cuts
         panels = [(f"Week {w.week}", np.asarray(ranks)) for w, ranks in analysis.recent_terciles]
+        if not panels:  # no cut points this week (too few districts with data): one panel, no classes
+            panels = [(f"Week {week.week}", np.asarray(analysis.terciles.ranks))]
         fig = maps.tercile_small_multiples(
             geoms, panels, cuts, suppressed_label="no data or suppressed", decimals=digits
         )
@@ -96,7 +113,7 @@ def draw_report_figures(
         labels = {0: "no data", 1: "low", 2: "middle", 3: "high"}
         counts = cap.count_phrase([labels[int(r)] for r in ranks], ["low", "middle", "high", "no data"])
         first = analysis.recent_terciles[0][0].week if analysis.recent_terciles else week.week
-        items.append(_item("terciles", *cap.tercile_caption(
+        drawn(_item("terciles", *cap.tercile_caption(
             first_week=first, week=week.week, cuts=cuts, digits=digits, counts=counts
         ), fig))
 
@@ -104,7 +121,7 @@ def draw_report_figures(
         fig = maps.change_map(geoms, classes, title=None, width_cm=8.4)
         counts = cap.count_phrase(classes, ["increase", "decrease", "similar", "not assessable"])
         prior = analysis.prior_week.week if analysis.prior_week else week.week - 1
-        items.append(_item("change", *cap.change_caption(prior_week=prior, counts=counts), fig))
+        drawn(_item("change", *cap.change_caption(prior_week=prior, counts=counts), fig))
 
         cluster_labels = [str(c) for c in table["cluster_label"]]
         fig = maps.cluster_map(geoms, cluster_labels, title=None, width_cm=8.4)
@@ -114,7 +131,7 @@ def draw_report_figures(
             if members:
                 groups.append((label.value, members))
         others = cap.count_phrase(cluster_labels, ["not significant", "no neighbours", "no data", "not assessable"])
-        items.append(_item("clusters", *cap.cluster_caption(
+        drawn(_item("clusters", *cap.cluster_caption(
             variable=variable_words(analysis.settings.cluster_variable), groups=groups, others=others
         ), fig))
 
@@ -124,10 +141,14 @@ def draw_report_figures(
             geoms, last, now,
             titles=(f"Week {analysis.prior_week.week if analysis.prior_week else ''} (revised)", f"Week {week.week}"),
         )
-        items.append(_item("comparison", *cap.comparison_caption(
+        drawn(_item("comparison", *cap.comparison_caption(
             last_range=_range(last[np.isfinite(last)]), now_range=_range(now[np.isfinite(now)])
         ), fig))
     return ReportFigures(tuple(items))
+
+
+_FIGURES = 5
+"""Figures :func:`draw_report_figures` draws: the trend chart and four maps."""
 
 
 def _display(value: object, suppressed: object) -> float:
