@@ -52,7 +52,7 @@ from typing import Any
 
 from sitrep.errors import ConfigError, InputError
 
-__all__ = ["DraftFinding", "check_draft", "read_edited_draft"]
+__all__ = ["DraftFinding", "as_json", "check_draft", "read_edited_draft"]
 
 _MONTHS = (
     "January|February|March|April|May|June|July|August|September|October|November|December"
