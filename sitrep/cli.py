@@ -185,6 +185,16 @@ def _parser() -> argparse.ArgumentParser:
     k.add_argument("--out", type=Path, required=True, metavar="FOLDER",
                    help="folder for the key pair (created 0700 when missing)")
 
+    p = verb("check-draft", "compare an edited draft with the bundle it came from")
+    p.epilog = (
+        "exit codes: 0 nothing in the edit contradicts the bundle · 1 at least one figure, district,\n"
+        "week, direction word or caution would mislead (each is listed with its paragraph) ·\n"
+        "2 the bundle or the edited file cannot be read"
+    )
+    p.add_argument("bundle", type=Path, help="bundle folder, e.g. ARCHIVE/<jurisdiction>/2026-W47/v1")
+    p.add_argument("edited", type=Path, help="the edited draft: .docx, .md or .txt")
+    p.add_argument("--json", action="store_true", help="print the findings as JSON")
+
     p = verb("send", "e-mail an archived bundle's PDF")
     p.epilog = (
         "exit codes: 0 sent, or written as <bundle>.eml with --dry-run · 1 the archived run was\n"
@@ -482,6 +492,35 @@ def _cmd_keys(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
+def _cmd_check_draft(args: argparse.Namespace) -> int:
+    from sitrep.deliver.archive import verify_bundle
+    from sitrep.deliver.draft_check import as_json, check_draft, read_edited_draft
+
+    if not args.bundle.is_dir():
+        raise ConfigError(f"{args.bundle} is not a folder; pass ARCHIVE/<jurisdiction>/<year>-W<ww>/v<k>")
+    if (args.bundle / "manifest-sha256.txt").is_file() and not verify_bundle(args.bundle).ok:
+        raise ConfigError(
+            f"{args.bundle} fails `sitrep verify`; a draft cannot be checked against a changed bundle"
+        )
+    try:
+        paragraphs = read_edited_draft(args.edited)
+    except InputError as exc:
+        raise ConfigError(str(exc)) from None
+    findings = check_draft(args.bundle, paragraphs)
+    if args.json:
+        print(json.dumps(as_json(findings), indent=2, ensure_ascii=False))
+    else:
+        for f in findings:
+            print(f.line())
+        verdict = (
+            f"{len(findings)} place(s) in {args.edited.name} would mislead; fix them or ask the "
+            "surveillance team" if findings else
+            f"OK: {len(paragraphs)} paragraph(s) of {args.edited.name} agree with {args.bundle}"
+        )
+        print(verdict)
+    return EXIT_BLOCKED if findings else EXIT_OK
+
+
 def _resend_advice(bundle: Path, config_path: Path) -> str:
     return (
         "the message may or may not have been delivered. Check with a recipient whether it arrived "
@@ -542,6 +581,7 @@ COMMANDS = {
     "init": _cmd_init,
     "templates": _cmd_templates,
     "verify": _cmd_verify,
+    "check-draft": _cmd_check_draft,
     "keys": _cmd_keys,
     "send": _cmd_send,
     "run": _cmd_run,
