@@ -149,7 +149,9 @@ def template_problems(folder: Path) -> list[tuple[str, int | None, str]]:
         except jinja2.TemplateSyntaxError as exc:
             out.append((t.name, exc.lineno, f"{path} cannot be parsed: {exc.message}"))
             continue
-        allowed = receives[t.included_by or t.name] | set(env.globals)
+        # names the template sets itself, even inside a branch, which Jinja2 counts as undeclared
+        stored = {n.name for n in tree.find_all(jinja2.nodes.Name) if n.ctx in ("store", "param")}
+        allowed = receives[t.included_by or t.name] | set(env.globals) | stored
         unknown = sorted(jinja2.meta.find_undeclared_variables(tree) - allowed)
         if unknown:
             out.append(
