@@ -658,3 +658,54 @@ def test_reissue_would_show_a_cell_version_1_withheld(generated) -> None:  # typ
     )
     assert not v1.analysis.disclosure.this_week.ids <= afresh.ids
     assert v1.analysis.disclosure.this_week.ids <= v2.analysis.disclosure.this_week.ids
+
+
+@pytest.mark.parametrize(
+    "name", ["internal-results-UNSUPPRESSED.csv", "internal-quality-annex.pdf", "report-unsuppressed.csv",
+             "figures/internal-map.png"],
+)
+def test_mail_refuses_internal_files(name: str) -> None:
+    import datetime as dt
+
+    from sitrep.deliver.mail import build_message
+    from sitrep.errors import DeliveryError
+
+    def message(attachment: str):  # type: ignore[no-untyped-def]
+        return build_message(
+            subject="s", body="b", sender="a@example.org", recipients=["b@example.org"],
+            reply_to=None, attachments=[(attachment, b"x", "text/csv")], message_id_seed="seed",
+            date=dt.datetime(2026, 11, 30, tzinfo=dt.UTC),
+        )
+
+    with pytest.raises(DeliveryError, match="internal use only"):
+        message(name)
+    assert message("results.csv")["To"] == "b@example.org"
+
+
+def test_total_is_withheld_when_nothing_else_protects(tmp_path: Path) -> None:
+    """Two districts with 2 and 1 ILI visits: withholding both still leaves the total (3, a
+    small count) printable, so the jurisdiction's counts and percentages are withheld too."""
+    from conftest import TODAY
+
+    from sitrep import pipeline
+
+    small = {"D01": (2, 400), "D02": (1, 300)}
+
+    def edit(rows: list[list[str]]) -> list[list[str]]:
+        return _edit(small, "2026-W47")(_edit(small, "2026-W46")(rows))
+
+    week = make_week(tmp_path, cols=2, rows=1, island=False, edit_table=edit, edit_prior=edit,
+                     pdf=True)
+    result = pipeline.build(week.config(), today=TODAY)
+    d = result.analysis.disclosure
+    assert d.this_week.total_withheld and d.prior_week.total_withheld
+    assert "fewer than 5 ILI visits" in d.this_week.reason
+    doc = json.loads((result.bundle.path / "results.json").read_text(encoding="utf-8"))
+    j = doc["jurisdiction"]
+    assert j["withheld"] and j["ili_visits"] is None and j["ili_percent"] is None
+    assert j["prior_ili_percent"] is None and j["change_pp"] is None
+    assert "jurisdiction total is withheld as well" in result.context.disclosure_note
+    texts = published_texts(result.bundle.path)
+    for name, text in texts.items():
+        for pct in ("0.43%", "0.429%"):  # 3 of 700 [HAND]
+            assert pct not in text, (name, pct)

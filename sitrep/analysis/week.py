@@ -148,6 +148,30 @@ class JurisdictionSummary:
     change_from_zero: bool
     change_p: float
     change_class: ChangeClass
+    withheld: bool = False
+    """This week's total is withheld (no choice of districts protected the small counts);
+    its percentages and the change are NaN then and its counts must not be shown."""
+    prior_withheld: bool = False
+    """Last week's total is withheld likewise (last week's percentages and the change are NaN)."""
+
+
+def _withhold_totals(j: JurisdictionSummary, now: bool, before: bool) -> JurisdictionSummary:
+    """Blank the jurisdiction figures of a week whose total is withheld (docs/methods.md §6.2)."""
+    nan = float("nan")
+    changes: dict[str, object] = {}
+    if now:
+        changes.update(ili_percent=nan, ci_low=nan, ci_high=nan, withheld=True)
+    if before:
+        changes.update(
+            prior_ili_percent=nan, prior_ci_low=nan, prior_ci_high=nan,
+            prior_ili_percent_published=nan, prior_withheld=True,
+        )
+    if now or before:
+        changes.update(
+            change_pp=nan, change_low_pp=nan, change_high_pp=nan, change_relative=nan,
+            change_p=nan, change_from_zero=False, change_class=ChangeClass.NOT_ASSESSABLE,
+        )
+    return dataclasses.replace(j, **changes) if changes else j  # type: ignore[arg-type]
 
 
 @dataclasses.dataclass(frozen=True, eq=False)
@@ -476,7 +500,11 @@ def analyse_week(
     recent = _recent_terciles(
         current, prior, ids, week, recent_weeks, terciles, rules, withheld_by_week, notes
     )
-    jurisdiction = _jurisdiction(cur, before, published, settings)
+    jurisdiction = _withhold_totals(
+        _jurisdiction(cur, before, published, settings),
+        disclosure.this_week.total_withheld,
+        disclosure.prior_week.total_withheld,
+    )
 
     prior_pct = ili_percent(before.ili, before.visits)
     published_pct = ili_percent(published.ili, published.visits)

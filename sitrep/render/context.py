@@ -23,7 +23,7 @@ from sitrep.render.wording import methods as mt
 from sitrep.render.wording import plain as pl
 from sitrep.render.wording import sentences as nv
 from sitrep.render.wording.mail import ATTACHED
-from sitrep.render.wording.sentences import PRIOR_WITHHELD_NOTE, WITHHELD_NOTE
+from sitrep.render.wording.sentences import PRIOR_WITHHELD_NOTE, WITHHELD_NOTE, WITHHELD_TOTAL
 
 __all__ = [
     "DistrictRow",
@@ -401,7 +401,7 @@ def build_context(
             n_total=j.n_districts_total,
         ),
         completeness=mt.completeness_sentence(
-            visits_now=int(j.total_visits), visits_usual=usual, weeks=len(previous)
+            visits_now=None if j.withheld else int(j.total_visits), visits_usual=usual, weeks=len(previous)
         ),
     )
     decision = analysis.disclosure
@@ -500,7 +500,7 @@ def _indicators(
     prior_label = f"week {analysis.prior_week.week}" if analysis.prior_week else "last week"
     revised_note = nv.revision_note(published=j.prior_ili_percent_published, revised=j.prior_ili_percent)
     rows = [
-        IndicatorRow("ILI% this week", fm.fmt_pct(j.ili_percent), f"{conf} CI {fm.fmt_interval(j.ci_low, j.ci_high)}; {fm.fmt_count(j.ili_visits)} of {fm.fmt_count(j.total_visits)} visits"),
+        IndicatorRow("ILI% this week", fm.fmt_pct(j.ili_percent), WITHHELD_TOTAL if j.withheld else f"{conf} CI {fm.fmt_interval(j.ci_low, j.ci_high)}; {fm.fmt_count(j.ili_visits)} of {fm.fmt_count(j.total_visits)} visits"),
         IndicatorRow(f"ILI% {prior_label} (revised)", fm.fmt_pct(j.prior_ili_percent), revised_note),
         IndicatorRow("Change", fm.fmt_pp(j.change_pp), f"{conf} CI {fm.fmt_interval(j.change_low_pp, j.change_high_pp, ' pp')}; {verdict}"),
         IndicatorRow("Districts reporting", f"{j.n_districts_reporting} of {j.n_districts_total}", nv.reporting_note(j.reporting_sites if math.isfinite(_f(j.reporting_sites)) else None)),

@@ -174,6 +174,10 @@ def results_json(analysis: WeekAnalysis, settings: AnalysisSettings) -> bytes:
         "ili_visits": clean(j.ili_visits), "total_visits": clean(j.total_visits),
         "districts_reporting": clean(j.n_districts_reporting), "districts": clean(j.n_districts_total),
     }
+    if j.withheld:
+        summary.update(ili_visits=None, total_visits=None, withheld=True)
+    if j.prior_withheld:
+        summary.update(prior_withheld=True)
     doc = {
         "week": str(analysis.week),
         "prior_week": str(analysis.prior_week) if analysis.prior_week else None,

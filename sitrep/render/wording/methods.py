@@ -134,7 +134,7 @@ def methods_sections(m: MethodSettings) -> tuple[tuple[str, str], ...]:
             f"with the same statistic after {m.permutations:,} random reshufflings of the other districts' "
             f"values (conditional permutation, seed {m.seed}); the pseudo p-value counts the reshufflings at "
             f"least as extreme as the observed value, on the side it falls. Multiple testing: {multiple}. "
-            "Districts without data or with too few visits are left out; districts with no neighbour are "
+            "Districts without data or withheld to protect small counts are left out; districts with no neighbour are "
             "never tested."
         )),
         ("Global Moran's I", m.global_text),
@@ -234,8 +234,11 @@ def coverage_sentence(*, n_sites: float | None, n_reporting: int, n_total: int) 
     )
 
 
-def completeness_sentence(*, visits_now: int, visits_usual: float | None, weeks: int) -> str:
-    """Completeness of this week's reporting against the usual volume of visits."""
+def completeness_sentence(*, visits_now: int | None, visits_usual: float | None, weeks: int) -> str:
+    """Completeness of this week's reporting against the usual volume of visits
+    (``visits_now`` None: this week's total is withheld)."""
+    if visits_now is None:
+        return "Completeness is not shown: this week's total is withheld to protect small counts."
     if visits_usual is None or visits_usual <= 0:
         return "Completeness against the usual volume could not be judged: too few recent weeks."
     share = visits_now / visits_usual

@@ -56,6 +56,7 @@ __all__ = [
     "redacted_finding",
     "PRIOR_WITHHELD_NOTE",
     "WITHHELD_NOTE",
+    "WITHHELD_TOTAL",
 ]
 
 VERDICTS = (
@@ -459,6 +460,8 @@ __all__ += ["NOT_AVAILABLE", "global_moran_text", "reporting_note"]
 
 WITHHELD_NOTE = "withheld to protect small counts"
 """District table note of a district whose counts are withheld this week."""
+WITHHELD_TOTAL = "the jurisdiction's counts are withheld this week to protect small counts"
+"""Indicator note when this week's jurisdiction total itself is withheld."""
 PRIOR_WITHHELD_NOTE = "last week withheld to protect small counts"
 """District table note of a district shown this week whose last week is withheld."""
 
