@@ -32,6 +32,7 @@ if TYPE_CHECKING:
     from sitrep.analysis.week import WeekAnalysis
     from sitrep.analysis.weights import DistrictGraph
     from sitrep.deliver.archive import Bundle
+    from sitrep.deliver.signing import Signer
     from sitrep.render.context import ReportContext
 
 # The analysis, render and deliver stages are imported inside build(): check()
@@ -339,6 +340,7 @@ def _build(
     worker: Any,
 ) -> RunResult:
     """:func:`build` with the PDF worker already started."""
+    signer = _signer(config) if archive and config.output.archive is not None else None
     inputs = read_inputs(config, today=today or dt.date.today(), timings=timings)
     if inputs.validation.blocked:
         raise ValidationFailed(
@@ -349,6 +351,8 @@ def _build(
         from sitrep.analysis.seasonal_context import seasonal_context
         from sitrep.analysis.week import analyse_week
         from sitrep.deliver.archive import (
+            already_archived,
+            bundle_dir,
             check_outputs,
             next_version,
             read_source_date_epoch,
@@ -358,6 +362,7 @@ def _build(
             write_outputs,
         )
         from sitrep.render.context import build_context, context_digits
+        from sitrep.render.dictionary import dictionary_csv
         from sitrep.render.draft import render_docx, render_email_body, render_markdown
         from sitrep.render.html import asset_dir, render_html
         from sitrep.render.report_figures import draw_report_figures
@@ -384,6 +389,15 @@ def _build(
             f"it holds {inputs.table.weeks[0]} to {inputs.table.weeks[-1]}"
         )
     log(f"report week {week} ({week.start:%d %b %Y} to {week.end:%d %b %Y})")
+    if archive and config.output.archive is not None and reissue_reason is None:
+        # Refuse an archived week before the analysis and rendering, not after them.
+        latest = next_version(config.output.archive, config.report.jurisdiction, str(week)) - 1
+        if latest >= 1:
+            raise already_archived(
+                config.report.jurisdiction,
+                str(week),
+                bundle_dir(config.output.archive, config.report.jurisdiction, str(week), latest),
+            )
     with _timed(timings, "weights"):
         graph = _graph(inputs.districts, config, log)
     with _timed(timings, "analysis"):
@@ -401,6 +415,7 @@ def _build(
         inputs.validation, analysis.disclosure.this_week.ids | analysis.disclosure.prior_week.ids
     )
     versions = library_versions()
+    name = config.report.jurisdiction
     reissue = None
     version: int | None = None
     if archive and config.output.archive is not None:
@@ -440,7 +455,7 @@ def _build(
                     pdf_html,
                     asset_dir=asset_dir(),
                     pdf_variant=config.output.pdf_variant,
-                    attachments=(("results.csv", results_csv(analysis, config.analysis)),)
+                    attachments=(("results.csv", results_csv(analysis, config.analysis, jurisdiction=name)),)
                     if config.output.pdf_variant
                     else (),
                 )
@@ -449,11 +464,14 @@ def _build(
             files["draft.docx"] = render_docx(context)
             files["email.txt"] = render_email_body(context, config.report.template_dir).encode("utf-8")
     with _timed(timings, "results"):
-        files["results.csv"] = results_csv(analysis, config.analysis)
-        files["results.json"] = results_json(analysis, config.analysis)
+        files["results.csv"] = results_csv(analysis, config.analysis, jurisdiction=name)
+        files["results.json"] = results_json(analysis, config.analysis, jurisdiction=name)
+        files["results-dictionary.csv"] = dictionary_csv()
         files["validation.json"] = validation_json(published_validation)
         if config.output.keep_suppressed_values:
-            files[INTERNAL_RESULTS] = internal_results_csv(analysis, config.analysis)
+            files[INTERNAL_RESULTS] = internal_results_csv(
+                analysis, config.analysis, jurisdiction=name
+            )
     if worker is not None:
         with _timed(timings, "pdf"):
             pdf = worker.result()
@@ -489,6 +507,7 @@ def _build(
                 archived,
                 manifest,
                 reissue_reason=reissue_reason,
+                signer=signer,
             )
             log(f"archived bundle {bundle.path}")
         written = write_outputs(out_dir or config.output.folder, files)
@@ -523,6 +542,31 @@ def _earlier_publications(config: Config, week: EpiWeek) -> dict[str, Any]:
                 merged = merged.merged(found)
         out[label] = merged
     return out
+
+
+def _signer(config: Config) -> Signer | None:
+    """The bundle signer from ``output.signing_key`` / ``$SITREP_SIGNING_KEY``, or None.
+
+    Loaded before any work so that a missing or unsafe key stops the run at
+    once; refused when the jurisdiction's latest bundle is signed and no key is
+    configured (an unsigned bundle may not follow a signed one).
+    """
+    from sitrep.deliver.archive import chain_head, jurisdiction_slug
+    from sitrep.deliver.signing import load_signer, signing_key_path
+
+    assert config.output.archive is not None
+    path = signing_key_path(config.output.signing_key)
+    if path is not None:
+        return load_signer(path)
+    head = chain_head(config.output.archive / jurisdiction_slug(config.report.jurisdiction))
+    if head is not None and head.signed:
+        raise ConfigError(
+            f"the latest archived bundle of {config.report.jurisdiction} ({head.bundle_id}) is "
+            "signed, but no signing key is configured; set output.signing_key (or "
+            "$SITREP_SIGNING_KEY) to the jurisdiction's key. An unsigned bundle may not follow "
+            "a signed one"
+        )
+    return None
 
 
 def _manifest(

@@ -96,8 +96,9 @@ def test_top_level_help_and_usage_errors(capsys: pytest.CaptureFixture[str]) -> 
 def test_exit_codes_match_the_documented_tables(monkeypatch: pytest.MonkeyPatch) -> None:
     # The table in the cli docstring ...
     table = dict(re.findall(r"^(\d)\s{2,}(\S.*)$", cli.__doc__ or "", flags=re.MULTILINE))
-    assert set(table) == {"0", "1", "2", "3"}
+    assert set(table) == {"0", "1", "2", "3", "5"}
     assert (cli.EXIT_OK, cli.EXIT_BLOCKED, cli.EXIT_USAGE, cli.EXIT_DELIVERY) == (0, 1, 2, 3)
+    assert cli.EXIT_ARCHIVED == 5 and table["5"].startswith("already archived")
     assert table["0"] == "done" and table["1"].startswith("blocked")
     assert table["2"].startswith("usage") and table["3"].startswith("delivery")
     # ... and the exception tree in the errors docstring: main() maps each class to its code.
@@ -302,7 +303,7 @@ def test_send_of_a_blocked_bundle_exits_1_and_sends_nothing(
 ) -> None:
     # A complete, checksummed bundle whose validation result blocks the run (docs/faults.md F11 f).
     manifest = json.loads((bundle / "manifest.json").read_text())
-    for key in ("bundle", "files", "reissue"):
+    for key in ("bundle", "files", "reissue", "chain", "signature"):
         manifest.pop(key, None)
     validation = {
         "blocked": True,

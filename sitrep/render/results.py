@@ -1,6 +1,10 @@
 """Machine-readable results: results.csv, results.json and validation.json.
 
-Text cells that a spreadsheet would evaluate as a formula (starting with
+results.csv is UTF-8 with a byte order mark (a spreadsheet opened by
+double-click then shows accented names correctly); results.json and
+validation.json are plain UTF-8. Counts are whole numbers (``12``, not
+``12.0``) and a missing value is an empty field (``null`` in JSON). Every
+column and key is described in :mod:`sitrep.render.dictionary`. Text cells that a spreadsheet would evaluate as a formula (starting with
 ``=``, ``+``, ``-``, ``@``, TAB, CR or LF) are prefixed with an apostrophe
 (OWASP ASVS 1.2.10 guidance on CSV injection); numbers are written as numbers.
 Withheld districts' values are blanked (docs/methods.md §6.2); with
@@ -19,13 +23,17 @@ import re
 from collections.abc import Iterable
 from typing import Any
 
+import pandas as pd
+
 from sitrep.analysis.disclosure import Earlier
 from sitrep.analysis.week import WeekAnalysis
 from sitrep.config import AnalysisSettings
 from sitrep.model import Finding, ValidationReport
+from sitrep.render.dictionary import BOM
 from sitrep.render.wording.sentences import redacted_finding
 
 __all__ = [
+    "COUNT_COLUMNS",
     "INTERNAL_RESULTS",
     "RESULT_COLUMNS",
     "csv_field",
@@ -38,22 +46,25 @@ __all__ = [
     "validation_json",
 ]
 
-INTERNAL_RESULTS = "internal-results-UNSUPPRESSED.csv"
-"""Bundle file with the true values of withheld districts (``output.keep_suppressed_values``)."""
-
 RESULT_COLUMNS = (
-    "district_id", "district_name", "week", "reporting_sites", "ili_visits", "total_visits",
+    "jurisdiction", "week", "week_start", "week_end",
+    "district_id", "district_name", "reporting_sites", "ili_visits", "total_visits",
     "ili_percent", "ci_low", "ci_high", "suppressed", "prior_suppressed", "prior_ili_percent",
     "prior_ili_percent_published", "change_pp", "change_low_pp", "change_high_pp",
     "change_relative", "change_from_zero", "change_p", "change_class", "tercile", "eb_percent",
     "local_i", "p_value", "q_value", "cluster_label", "prior_cluster_label", "transition",
 )
+COUNT_COLUMNS = ("reporting_sites", "ili_visits", "total_visits")
+"""Columns holding counts: written as whole numbers."""
 _SUPPRESSIBLE = ("ili_visits", "total_visits", "ili_percent", "ci_low", "ci_high", "change_pp",
                  "change_low_pp", "change_high_pp", "change_relative", "change_p", "eb_percent",
                  "local_i", "p_value", "q_value")
 _PRIOR_SUPPRESSIBLE = ("prior_ili_percent", "prior_ili_percent_published", "change_pp",
                        "change_low_pp", "change_high_pp", "change_relative", "change_p")
-_INTERNAL_COLUMNS = (*RESULT_COLUMNS, "withheld_rule", "prior_withheld_rule")
+INTERNAL_RESULTS = "internal-results-UNSUPPRESSED.csv"
+"""Bundle file with the true values of withheld districts (``output.keep_suppressed_values``)."""
+INTERNAL_COLUMNS = (*RESULT_COLUMNS, "withheld_rule", "prior_withheld_rule")
+"""Columns of :data:`INTERNAL_RESULTS`: those of results.csv and the rule that withheld each week."""
 _TRIGGERS = ("=", "+", "-", "@", "\t", "\r", "\n")
 
 
@@ -67,12 +78,17 @@ def neutralise_formula(text: str) -> str:
 
 
 def _records(
-    analysis: WeekAnalysis, settings: AnalysisSettings, *, internal: bool = False
+    analysis: WeekAnalysis, settings: AnalysisSettings, jurisdiction: str, *, internal: bool = False
 ) -> list[dict[str, Any]]:
     """Rows of the published table (withheld values blank), or with ``internal`` the true ones."""
     out = []
+    fixed = {
+        "jurisdiction": jurisdiction,
+        "week_start": analysis.week.start.isoformat(),
+        "week_end": analysis.week.end.isoformat(),
+    }
     table = analysis.unprotected_table if internal else analysis.table
-    columns = _INTERNAL_COLUMNS if internal else RESULT_COLUMNS
+    columns = INTERNAL_COLUMNS if internal else RESULT_COLUMNS
     now, before = analysis.disclosure.this_week, analysis.disclosure.prior_week
     for rec in table.to_dict("records"):
         if internal:
@@ -81,11 +97,15 @@ def _records(
             rec["prior_withheld_rule"] = r_before.value if r_before is not None else ""
         row = {}
         for col in columns:
-            value = rec.get(col)
+            value = fixed[col] if col in fixed else rec.get(col)
             if hasattr(value, "item"):
                 value = value.item()
+            if value is not None and not isinstance(value, (str, bool)) and pd.isna(value):
+                value = None  # NaN and pandas' NA
             if isinstance(value, float) and not math.isfinite(value):
                 value = None
+            if col in COUNT_COLUMNS and isinstance(value, float) and value.is_integer():
+                value = int(value)
             row[col] = value
         if not internal:
             if row["suppressed"]:
@@ -114,28 +134,35 @@ def csv_field(text: str) -> str:
     return text
 
 
-def results_csv(analysis: WeekAnalysis, settings: AnalysisSettings) -> bytes:
-    """The per-district table as UTF-8 CSV (RFC 4180 quoting by :func:`csv_field`, LF line ends).
+def results_csv(analysis: WeekAnalysis, settings: AnalysisSettings, *, jurisdiction: str) -> bytes:
+    """The per-district table as CSV: UTF-8 with a byte order mark, RFC 4180 quoting by
+    :func:`csv_field`, LF line ends.
 
-    Text cells pass through :func:`neutralise_formula` first; numbers are
-    written with ``repr`` after rounding to 10 decimals, booleans as
-    ``true``/``false``, missing values as empty fields. Withheld values are
-    empty.
+    ``jurisdiction`` (``report.jurisdiction``) fills the first column, so that
+    weekly files of several jurisdictions stack. Text cells pass through
+    :func:`neutralise_formula` first; counts (:data:`COUNT_COLUMNS`) are whole
+    numbers, other numbers are written with ``repr`` after rounding to 10
+    decimals, booleans as ``true``/``false``, missing values as empty fields.
+    Withheld values are empty.
     """
-    return _csv(analysis, settings, internal=False)
+    return _csv(analysis, settings, jurisdiction, internal=False)
 
 
-def internal_results_csv(analysis: WeekAnalysis, settings: AnalysisSettings) -> bytes:
+def internal_results_csv(
+    analysis: WeekAnalysis, settings: AnalysisSettings, *, jurisdiction: str
+) -> bytes:
     """:func:`results_csv` with the true values of withheld districts and the rule that withheld
     each (for :data:`INTERNAL_RESULTS`; internal use only)."""
-    return _csv(analysis, settings, internal=True)
+    return _csv(analysis, settings, jurisdiction, internal=True)
 
 
-def _csv(analysis: WeekAnalysis, settings: AnalysisSettings, *, internal: bool) -> bytes:
-    columns = _INTERNAL_COLUMNS if internal else RESULT_COLUMNS
+def _csv(
+    analysis: WeekAnalysis, settings: AnalysisSettings, jurisdiction: str, *, internal: bool
+) -> bytes:
+    columns = INTERNAL_COLUMNS if internal else RESULT_COLUMNS
     buffer = io.StringIO()
     buffer.write(",".join(csv_field(c) for c in columns) + "\n")
-    for row in _records(analysis, settings, internal=internal):
+    for row in _records(analysis, settings, jurisdiction, internal=internal):
         cells = []
         for col in columns:
             value = row[col]
@@ -150,11 +177,11 @@ def _csv(analysis: WeekAnalysis, settings: AnalysisSettings, *, internal: bool) 
             else:
                 cells.append(neutralise_formula(str(value)))
         buffer.write(",".join(csv_field(c) for c in cells) + "\n")
-    return buffer.getvalue().encode("utf-8")
+    return BOM + buffer.getvalue().encode("utf-8")
 
 
-def results_json(analysis: WeekAnalysis, settings: AnalysisSettings) -> bytes:
-    """The per-district table and the jurisdiction summary as JSON."""
+def results_json(analysis: WeekAnalysis, settings: AnalysisSettings, *, jurisdiction: str) -> bytes:
+    """The per-district table (the rows of results.csv) and the jurisdiction summary as JSON."""
     j = analysis.jurisdiction
 
     def clean(x: Any) -> Any:
@@ -174,16 +201,18 @@ def results_json(analysis: WeekAnalysis, settings: AnalysisSettings) -> bytes:
         "ili_visits": clean(j.ili_visits), "total_visits": clean(j.total_visits),
         "districts_reporting": clean(j.n_districts_reporting), "districts": clean(j.n_districts_total),
     }
+    summary.update(withheld=j.withheld, prior_withheld=j.prior_withheld)
     if j.withheld:
-        summary.update(ili_visits=None, total_visits=None, withheld=True)
-    if j.prior_withheld:
-        summary.update(prior_withheld=True)
+        summary.update(ili_visits=None, total_visits=None)
     doc = {
         "week": str(analysis.week),
+        "week_start": analysis.week.start.isoformat(),
+        "week_end": analysis.week.end.isoformat(),
         "prior_week": str(analysis.prior_week) if analysis.prior_week else None,
+        "jurisdiction_name": jurisdiction,
         "jurisdiction": summary,
         "tercile_cuts": list(analysis.terciles.cuts) if analysis.terciles.cuts else None,
-        "districts": _records(analysis, settings),
+        "districts": _records(analysis, settings, jurisdiction),
     }
     return (json.dumps(doc, indent=2, sort_keys=True, ensure_ascii=False) + "\n").encode("utf-8")
 
