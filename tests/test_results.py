@@ -89,7 +89,7 @@ def test_counts_are_whole_numbers_and_blanks_stay_blank(built: types.SimpleNames
     rows = {r["district_id"]: r for r in _rows(built.out["results.csv"])}
     assert rows["D03"]["reporting_sites"] == ""  # blank in the table, blank here
     assert rows["D05"]["suppressed"] == "true" and rows["D05"]["ili_visits"] == ""
-    assert rows["D05"]["total_visits"] == "30"
+    assert rows["D05"]["total_visits"] == ""  # withheld too (docs/methods.md §6.2)
     for ident, row in rows.items():
         for column in COUNT_COLUMNS:
             cell = row[column]
