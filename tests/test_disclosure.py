@@ -464,7 +464,10 @@ def test_attacker_cannot_recover_any_withheld_count_in_the_demo(demo_build) -> N
     held = withheld_cells([bundle])
     assert "042" in held["2026-W47"] and "042" in held["2026-W46"]
     claims = reconstruct([bundle], truth)
-    assert claims, "the attacker must at least read the districts shown"
+    hows = {how.split(": ")[-1] for *_, how in claims}
+    # the attacker did read the files: counts from the CSV/JSON and from the HTML table,
+    # Wilson intervals of both (the attack is not skipped because a file changed shape)
+    assert {"printed count", "Wilson interval", "HTML table count", "HTML interval"} <= hows, hows
     assert leaks(claims, truth, held) == []
     names = dict(zip(result.analysis.table["district_id"], result.analysis.table["district_name"], strict=True))
     assert text_leaks(bundle, truth, held, names) == []
@@ -709,3 +712,24 @@ def test_total_is_withheld_when_nothing_else_protects(tmp_path: Path) -> None:
     for name, text in texts.items():
         for pct in ("0.43%", "0.429%"):  # 3 of 700 [HAND]
             assert pct not in text, (name, pct)
+
+
+def test_findings_about_withheld_districts_are_redacted() -> None:
+    from sitrep.model import Finding, Severity, ValidationReport
+    from sitrep.render.results import redact_findings
+
+    report = ValidationReport((
+        Finding(Severity.WARNING, "revision-large", "district 042, 2026-W46 was revised: ILI visits 3 -> 1",
+                "extract.csv", 291, "ili_visits", "042", "3 -> 1"),
+        Finding(Severity.WARNING, "revision-summary", "largest change (district 042, 2026-W45: 3.7% -> 2.0%)",
+                "extract.csv"),
+        Finding(Severity.WARNING, "value-spike", "district 0421 rose", "extract.csv", 12, "ili_visits",
+                "0421", "9"),
+    ))
+    out = redact_findings(report, {"042"})
+    assert [f.value for f in out.findings] == [None, None, "9"]
+    for f in out.findings[:2]:
+        assert "withheld" in f.message and not re.search(r"\d+(\.\d+)?%|-> ", f.message)
+        assert f.line in (291, None) and f.file == "extract.csv"
+    assert out.findings[2] == report.findings[2]  # 0421 is another district
+    assert redact_findings(report, set()) is report
