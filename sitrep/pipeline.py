@@ -494,10 +494,11 @@ def _build(
                 signer=signer,
             )
             log(f"archived bundle {bundle.path}")
+        written = write_outputs(out_dir or config.output.folder, files)
+        if bundle is not None and config.output.archive is not None:
             from sitrep.deliver.index import refresh_index
 
             refresh_index(config.output.archive, log)
-        written = write_outputs(out_dir or config.output.folder, files)
     return RunResult(week, inputs.validation, written, bundle, analysis, context)
 
 

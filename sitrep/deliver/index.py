@@ -399,7 +399,7 @@ def write_index(
             old = int(Path(e.compare_link).stem.rsplit("-v", 2)[1])
             comparison = compare_versions(week_dir / f"v{old}", week_dir / f"v{e.version}")
             target = archive / e.compare_link
-            _replace(target, _render("archive_compare.html.j2", c=comparison, generated=when))
+            _replace(target, _render("archive_compare.html.j2", comparison=comparison, generated=when))
             written.append(target)
         jurisdictions = sorted({e.jurisdiction for e in entries})
         target = archive / INDEX_FILE
