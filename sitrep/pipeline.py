@@ -357,6 +357,7 @@ def _build(
             write_bundle,
             write_outputs,
         )
+        from sitrep.deliver.review import page_one_districts
         from sitrep.render.context import build_context, context_digits
         from sitrep.render.draft import render_docx, render_email_body, render_markdown
         from sitrep.render.html import asset_dir, render_html
@@ -450,6 +451,10 @@ def _build(
             files[f"figures/{name}"] = data
         manifest = _manifest(config, week, inputs, versions, reissue_reason)
         manifest["report_version"] = context.report_version
+        names = dict(zip(analysis.table["district_id"], analysis.table["district_name"], strict=True))
+        manifest["page_one_districts"] = page_one_districts(
+            context.named_district_ids, {str(k): str(v) for k, v in names.items()}
+        )
         manifest["outputs"] = {
             name: {"sha256": hashlib.sha256(data).hexdigest(), "size_bytes": len(data)}
             for name, data in sorted(files.items())

@@ -95,6 +95,19 @@ class SendOutcome:
 
 # --------------------------------------------------------------------------- message
 
+INTERNAL_PREFIX = "internal-"
+"""Files whose name starts with this are for the surveillance team only, never e-mailed."""
+
+
+def _refuse_internal(name: str) -> str:
+    """Refuse an attachment named ``internal-*`` (an internal annex must never leave by e-mail)."""
+    if Path(name).name.lower().startswith(INTERNAL_PREFIX):
+        raise DeliveryError(
+            f"attachment {name!r} is an internal file ({INTERNAL_PREFIX}*) and is never e-mailed; "
+            "attach the report PDF only"
+        )
+    return name
+
 
 def _no_newlines(field: str, value: str) -> str:
     if not isinstance(value, str):
@@ -176,7 +189,8 @@ def build_message(
     ------
     DeliveryError
         If a header value contains CR, LF or NUL, an address is malformed,
-        there is no recipient, ``date`` is naive, or the seed is empty.
+        there is no recipient, ``date`` is naive, the seed is empty, or an
+        attachment is an internal file (``internal-*``).
     """
     _no_newlines("subject", subject)
     _address("sender", sender)
@@ -208,6 +222,7 @@ def build_message(
         msg.set_content(body)
         for name, data, mime in attachments:
             _no_newlines("attachment name", name)
+            _refuse_internal(name)
             maintype, _, subtype = mime.partition("/")
             if not maintype or not subtype:
                 raise DeliveryError(

@@ -122,6 +122,9 @@ class ReportContext:
     attached_note: str = ATTACHED
     build_time: str = ""
     """ISO 8601 UTC time of the build (from SOURCE_DATE_EPOCH when set), for file properties."""
+    named_district_ids: tuple[str, ...] = ()
+    """Every district page 1 names (top third, high-value groups, groups gained or lost), by id:
+    the districts whose data-quality warnings hold a bundle for review."""
 
 
 PDF_FINDINGS = 25
@@ -450,6 +453,7 @@ def build_context(
         draft_key_messages=draft_messages,
         ci_heading=f"{fm.confidence_label(conf)} CI",
         build_time=build_time,
+        named_district_ids=tuple(sorted(named_ids)),
     )
 
 
