@@ -362,7 +362,13 @@ def _build(
         from sitrep.render.draft import render_docx, render_email_body, render_markdown
         from sitrep.render.html import asset_dir, render_html
         from sitrep.render.report_figures import draw_report_figures
-        from sitrep.render.results import results_csv, results_json, validation_json
+        from sitrep.render.results import (
+            INTERNAL_QUALITY_CSV,
+            internal_quality_csv,
+            results_csv,
+            results_json,
+            validation_json,
+        )
         from sitrep.versions import library_versions
 
     assert inputs.table is not None and inputs.districts is not None
@@ -441,6 +447,13 @@ def _build(
         files["results.csv"] = results_csv(analysis, config.analysis)
         files["results.json"] = results_json(analysis, config.analysis)
         files["validation.json"] = validation_json(inputs.validation)
+        district_names = {
+            str(k): str(v)
+            for k, v in zip(analysis.table["district_id"], analysis.table["district_name"], strict=True)
+        }
+        files[INTERNAL_QUALITY_CSV] = internal_quality_csv(
+            inputs.validation, district_names, context.named_district_ids
+        )
     if worker is not None:
         with _timed(timings, "pdf"):
             pdf = worker.result()
@@ -451,10 +464,7 @@ def _build(
             files[f"figures/{name}"] = data
         manifest = _manifest(config, week, inputs, versions, reissue_reason)
         manifest["report_version"] = context.report_version
-        names = dict(zip(analysis.table["district_id"], analysis.table["district_name"], strict=True))
-        manifest["page_one_districts"] = page_one_districts(
-            context.named_district_ids, {str(k): str(v) for k, v in names.items()}
-        )
+        manifest["page_one_districts"] = page_one_districts(context.named_district_ids, district_names)
         manifest["outputs"] = {
             name: {"sha256": hashlib.sha256(data).hexdigest(), "size_bytes": len(data)}
             for name, data in sorted(files.items())

@@ -1,4 +1,5 @@
-"""Machine-readable results: results.csv, results.json and validation.json.
+"""Machine-readable results: results.csv, results.json, validation.json and the internal
+data-quality annex (``internal-data-quality.csv``).
 
 Text cells that a spreadsheet would evaluate as a formula (starting with
 ``=``, ``+``, ``-``, ``@``, TAB, CR or LF) are prefixed with an apostrophe
@@ -11,13 +12,24 @@ from __future__ import annotations
 import io
 import json
 import math
+from collections.abc import Collection, Mapping
 from typing import Any
 
 from sitrep.analysis.week import WeekAnalysis
 from sitrep.config import AnalysisSettings
 from sitrep.model import ValidationReport
 
-__all__ = ["RESULT_COLUMNS", "csv_field", "neutralise_formula", "results_csv", "results_json", "validation_json"]
+__all__ = [
+    "INTERNAL_QUALITY_COLUMNS",
+    "INTERNAL_QUALITY_CSV",
+    "RESULT_COLUMNS",
+    "csv_field",
+    "internal_quality_csv",
+    "neutralise_formula",
+    "results_csv",
+    "results_json",
+    "validation_json",
+]
 
 RESULT_COLUMNS = (
     "district_id", "district_name", "week", "reporting_sites", "ili_visits", "total_visits",
@@ -141,3 +153,43 @@ def validation_json(report: ValidationReport) -> bytes:
         "findings": [f.as_dict() for f in report.findings],
     }
     return (json.dumps(doc, indent=2, sort_keys=True, ensure_ascii=False) + "\n").encode("utf-8")
+
+
+INTERNAL_QUALITY_CSV = "internal-data-quality.csv"
+"""The internal annex: for the surveillance team, never attached to the partner e-mail."""
+INTERNAL_QUALITY_COLUMNS = (
+    "severity", "rule", "file", "line", "column", "district_id", "district_name",
+    "named_on_page_one", "value", "message",
+)
+
+
+def internal_quality_csv(
+    report: ValidationReport, names: Mapping[str, str], named_on_page_one: Collection[str]
+) -> bytes:
+    """Every finding with its rule id, file, line and column, for the reviewer (UTF-8 CSV).
+
+    One row per finding, errors first, then warnings, then notes, each in the
+    order validation found them; ``named_on_page_one`` says whether the
+    finding's district is one page 1 names (those hold a bundle for review).
+    Quoting and formula neutralising as in :func:`results_csv`.
+    """
+    order = {"error": 0, "warning": 1, "info": 2}
+    findings = sorted(report.findings, key=lambda f: order.get(f.severity.value, 3))
+    buffer = io.StringIO()
+    buffer.write(",".join(INTERNAL_QUALITY_COLUMNS) + "\n")
+    for f in findings:
+        district = f.district_id or ""
+        cells = [
+            f.severity.value,
+            f.rule,
+            f.file,
+            "" if f.line is None else str(f.line),
+            f.column or "",
+            district,
+            names.get(district, "") if district else "",
+            ("true" if district in named_on_page_one else "false") if district else "",
+            "" if f.value is None else str(f.value),
+            f.message,
+        ]
+        buffer.write(",".join(csv_field(neutralise_formula(c)) for c in cells) + "\n")
+    return buffer.getvalue().encode("utf-8")
