@@ -198,6 +198,11 @@ class OutputSettings:
     copy_inputs: bool = True
     pdf: bool = True
     pdf_variant: str | None = None
+    signing_key: Path | None = None
+    """Ed25519 private key that signs each bundle's manifest (``sitrep keys init``); kept outside
+    the archive. ``$SITREP_SIGNING_KEY`` (a path) overrides it."""
+    trusted_keys: tuple[Path, ...] = ()
+    """Public keys ``sitrep verify --config`` accepts signatures from (old ones too, after a rotation)."""
 
 
 @dataclasses.dataclass(frozen=True)
@@ -352,6 +357,12 @@ def _coerce(hint: Any, value: Any, key: str, base_dir: Path) -> Any:
         ):
             raise ConfigError(f"{key} must be a list of {size} numbers, got {value!r}")
         return tuple(float(v) for v in value)
+    if origin is tuple and get_args(hint) == (Path, Ellipsis):
+        if isinstance(value, str):
+            value = [value]
+        if not isinstance(value, list):
+            raise ConfigError(f"{key} must be a list of path strings, got {value!r}")
+        return tuple(_coerce(Path, v, key, base_dir) for v in value)
     if origin is tuple:
         if isinstance(value, str):
             value = [value]
