@@ -110,6 +110,8 @@ class ReportContext:
     quality_statement: str = ""
     """The PDF's plain statement of data quality (no rule ids, files or lines: those are in
     the HTML report, validation.json and the internal annex internal-data-quality.csv)."""
+    quality_overall: tuple[str, ...] = ()
+    """Warnings about the jurisdiction's table as a whole (no district), for the PDF, as found."""
     analysis_notes: tuple[str, ...] = ()
     """What the statistics left out or could not do this week (e.g. districts without data)."""
     reissue_note: str = ""
@@ -437,6 +439,13 @@ def build_context(
         versions=tuple(sorted(versions.items())),
         inputs=tuple((f.role, f.path.name, f.sha256) for f in inputs),
         plain_sections=plain,
+        quality_overall=tuple(
+            dict.fromkeys(
+                f.message.replace(" -> ", " → ").rstrip(".") + "."
+                for f in validation.warnings
+                if not f.district_id
+            )
+        ),
         quality_statement=nv.partner_quality_statement(
             n_warnings=len(validation.warnings),
             named_affected=sorted(
