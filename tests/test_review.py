@@ -268,7 +268,7 @@ def test_review_record_survives_verify_and_a_rebuild(held: Held, tmp_path: Path)
         email__port=1,
     )
     code, _, err = cli_run("build", "--config", str(build_config), "--today", MONDAY)
-    assert code == cli.EXIT_DELIVERY and "already archived" in err  # the week is archived: v1 kept
+    assert code == cli.EXIT_ARCHIVED and "already archived" in err  # the week is archived: v1 kept
     assert record.read_bytes() == before
     assert verify_bundle(held.bundle).ok
     assert review_state(held.bundle, "on-warnings").status == "approved"
