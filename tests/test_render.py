@@ -129,7 +129,7 @@ def test_pdf_states_data_quality_plainly_and_the_html_lists_every_finding(demo_b
         assert (names[i] in statement) == (i in named), i
     assert statement in render_html_module.render_html(result.context, for_pdf=True)
     # the internal annex lists every finding with rule, file, line and column
-    annex = list(csv.DictReader(io.StringIO((folder / "out" / "internal-data-quality.csv").read_text(encoding="utf-8"))))
+    annex = list(csv.DictReader(io.StringIO((folder / "out" / "internal-data-quality.csv").read_text(encoding="utf-8-sig"))))
     assert len(annex) == len(result.validation.findings)
     row = next(r for r in annex if r["rule"] == "revision-large" and r["district_id"] in named)
     assert row["file"] and row["line"].isdigit() and row["column"] and row["named_on_page_one"] == "true"

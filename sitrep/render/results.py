@@ -194,7 +194,7 @@ INTERNAL_QUALITY_COLUMNS = (
 def internal_quality_csv(
     report: ValidationReport, names: Mapping[str, str], named_on_page_one: Collection[str]
 ) -> bytes:
-    """Every finding with its rule id, file, line and column, for the reviewer (UTF-8 CSV).
+    """Every finding with its rule id, file, line and column, for the reviewer (UTF-8 CSV with a BOM).
 
     One row per finding, errors first, then warnings, then notes, each in the
     order validation found them; ``named_on_page_one`` says whether the
@@ -220,4 +220,4 @@ def internal_quality_csv(
             f.message,
         ]
         buffer.write(",".join(csv_field(neutralise_formula(c)) for c in cells) + "\n")
-    return buffer.getvalue().encode("utf-8")
+    return BOM + buffer.getvalue().encode("utf-8")
