@@ -44,9 +44,11 @@ from sitrep.deliver.archive import MANIFEST_JSON, jurisdiction_slug, verify_bund
 from sitrep.errors import DeliveryError
 
 __all__ = [
+    "INTERNAL_PREFIX",
     "SendOutcome",
     "build_message",
     "eml_path",
+    "refuse_internal",
     "send_bundle",
     "send_message",
     "sent_record_path",
@@ -95,20 +97,6 @@ class SendOutcome:
 
 # --------------------------------------------------------------------------- message
 
-INTERNAL_PREFIX = "internal-"
-"""Files whose name starts with this are for the surveillance team only, never e-mailed."""
-
-
-def _refuse_internal(name: str) -> str:
-    """Refuse an attachment named ``internal-*`` (an internal annex must never leave by e-mail)."""
-    if Path(name).name.lower().startswith(INTERNAL_PREFIX):
-        raise DeliveryError(
-            f"attachment {name!r} is an internal file ({INTERNAL_PREFIX}*) and is never e-mailed; "
-            "attach the report PDF only"
-        )
-    return name
-
-
 def _no_newlines(field: str, value: str) -> str:
     if not isinstance(value, str):
         raise DeliveryError(f"e-mail {field} must be text, got {type(value).__name__}")
@@ -135,6 +123,31 @@ def _address(field: str, value: str) -> str:
             "fix it in [email]"
         )
     return value
+
+
+INTERNAL_PREFIX = "internal-"
+"""Bundle files for internal use only start with this; they are never attached."""
+
+
+def refuse_internal(name: str) -> str:
+    """Return ``name``, or refuse a file for internal use only as an attachment.
+
+    A file whose name (any path component) starts with :data:`INTERNAL_PREFIX`
+    or contains ``UNSUPPRESSED`` (any case) holds internal detail such as the
+    true values of withheld districts (docs/methods.md §6.2).
+
+    Raises
+    ------
+    DeliveryError
+        For such a name.
+    """
+    parts = str(name).replace("\\", "/").split("/")
+    if any(p.lower().startswith(INTERNAL_PREFIX) for p in parts) or "UNSUPPRESSED" in str(name).upper():
+        raise DeliveryError(
+            f"refusing to attach {name!r}: files starting with {INTERNAL_PREFIX!r} or naming "
+            "UNSUPPRESSED are for internal use only and are never e-mailed"
+        )
+    return name
 
 
 def build_message(
@@ -190,7 +203,7 @@ def build_message(
     DeliveryError
         If a header value contains CR, LF or NUL, an address is malformed,
         there is no recipient, ``date`` is naive, the seed is empty, or an
-        attachment is an internal file (``internal-*``).
+        attachment is an internal file (:func:`refuse_internal`).
     """
     _no_newlines("subject", subject)
     _address("sender", sender)
@@ -222,7 +235,7 @@ def build_message(
         msg.set_content(body)
         for name, data, mime in attachments:
             _no_newlines("attachment name", name)
-            _refuse_internal(name)
+            refuse_internal(name)
             maintype, _, subtype = mime.partition("/")
             if not maintype or not subtype:
                 raise DeliveryError(
