@@ -209,6 +209,8 @@ def test_after_approval_the_next_run_sends_exactly_once(held: Held) -> None:
     assert held.received["after"] == 1
     _, _, raw = held.handler.messages[0]
     assert b"internal-" not in raw  # only the partner PDF is attached
+    index = (held.folder / "archive" / "index.html").read_text(encoding="utf-8")
+    assert "approved by Dr Ilsa Marrow" in index  # the archive index shows the review state
 
 
 def test_approving_a_tampered_bundle_is_refused(held: Held, tmp_path: Path) -> None:
