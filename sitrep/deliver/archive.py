@@ -71,6 +71,7 @@ __all__ = [
     "jurisdiction_slug",
     "next_version",
     "read_source_date_epoch",
+    "replace_file",
     "reproducible_env",
     "source_date_epoch",
     "verify_bundle",
@@ -400,6 +401,26 @@ def _write_exclusive(path: Path, data: bytes, mode: int = _FILE_MODE) -> None:
         os.fsync(fd)
     finally:
         os.close(fd)
+
+
+def replace_file(path: Path, data: bytes) -> None:
+    """Write a file *beside* the bundles (send record, index page) by rename, mode 0644.
+
+    A reader sees the old content or the new, never half of it. Bundles
+    themselves are never rewritten: they use exclusive creation.
+    """
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
+    try:
+        with os.fdopen(fd, "wb") as fh:
+            fh.write(data)
+            fh.flush()
+            os.fsync(fh.fileno())
+        os.chmod(tmp, 0o644)
+        os.replace(tmp, path)
+    except BaseException:
+        with contextlib.suppress(FileNotFoundError):
+            os.unlink(tmp)
+        raise
 
 
 def _sha256(data: bytes) -> str:

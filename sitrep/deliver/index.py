@@ -28,14 +28,12 @@ import datetime as dt
 import difflib
 import html.parser
 import json
-import os
 import re
-import tempfile
 from collections.abc import Callable, Mapping
 from pathlib import Path
 from typing import Any
 
-from sitrep.deliver.archive import MANIFEST_JSON, bundle_folders, verify_bundle
+from sitrep.deliver.archive import MANIFEST_JSON, bundle_folders, replace_file, verify_bundle
 from sitrep.deliver.chain import verify_chain
 from sitrep.deliver.review import read_approvals
 from sitrep.errors import DeliveryError
@@ -353,23 +351,6 @@ def _render(template: str, **values: Any) -> bytes:
     return environment().get_template(template).render(**values).encode("utf-8")
 
 
-def _replace(path: Path, data: bytes) -> None:
-    """Write ``path`` by rename, so a reader never sees half a page."""
-    path.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
-    try:
-        with os.fdopen(fd, "wb") as fh:
-            fh.write(data)
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.chmod(tmp, 0o644)
-        os.replace(tmp, path)
-    except BaseException:
-        with contextlib.suppress(FileNotFoundError):
-            os.unlink(tmp)
-        raise
-
-
 def write_index(
     archive: Path, *, generated: dt.datetime | None = None
 ) -> tuple[list[Path], list[BundleEntry]]:
@@ -394,11 +375,12 @@ def write_index(
             old = int(Path(e.compare_link).stem.rsplit("-v", 2)[1])
             comparison = compare_versions(week_dir / f"v{old}", week_dir / f"v{e.version}")
             target = archive / e.compare_link
-            _replace(target, _render("archive_compare.html.j2", comparison=comparison, generated=when))
+            target.parent.mkdir(parents=True, exist_ok=True)
+            replace_file(target, _render("archive_compare.html.j2", comparison=comparison, generated=when))
             written.append(target)
         jurisdictions = sorted({e.jurisdiction for e in entries})
         target = archive / INDEX_FILE
-        _replace(target, _render(
+        replace_file(target, _render(
             "archive_index.html.j2", entries=entries, jurisdictions=jurisdictions, generated=when,
             problems=sum(1 for e in entries if e.checksums != "ok" or "broken" in e.chain),
         ))

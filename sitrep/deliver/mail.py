@@ -31,7 +31,6 @@ import json
 import os
 import smtplib
 import ssl
-import tempfile
 import time
 from collections.abc import Callable, Iterator, Mapping, Sequence
 from email.message import EmailMessage
@@ -40,7 +39,7 @@ from types import MappingProxyType
 from typing import Any, Literal
 
 from sitrep.config import EmailSettings
-from sitrep.deliver.archive import MANIFEST_JSON, jurisdiction_slug, verify_bundle
+from sitrep.deliver.archive import MANIFEST_JSON, jurisdiction_slug, replace_file, verify_bundle
 from sitrep.errors import DeliveryError
 
 __all__ = [
@@ -479,21 +478,6 @@ def eml_path(bundle_path: Path) -> Path:
     return bundle_path.with_name(bundle_path.name + ".eml")
 
 
-def _replace_file(path: Path, data: bytes) -> None:
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
-    try:
-        with os.fdopen(fd, "wb") as fh:
-            fh.write(data)
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.chmod(tmp, 0o644)
-        os.replace(tmp, path)
-    except BaseException:
-        with contextlib.suppress(FileNotFoundError):
-            os.unlink(tmp)
-        raise
-
-
 @contextlib.contextmanager
 def _send_lock(bundle_path: Path) -> Iterator[None]:
     lock = bundle_path.with_name(bundle_path.name + ".send.lock")
@@ -661,7 +645,7 @@ def send_bundle(
         )
         if dry_run:
             target = eml_path(bundle_path)
-            _replace_file(target, msg.as_bytes(policy=email.policy.SMTP))
+            replace_file(target, msg.as_bytes(policy=email.policy.SMTP))
             return SendOutcome(
                 status="dry-run",
                 message_id=str(msg["Message-ID"]),
@@ -680,7 +664,7 @@ def send_bundle(
         record = {"bundle": bundle_path.name, "sends": history}
         text = json.dumps(record, sort_keys=True, indent=2, ensure_ascii=False) + "\n"
         try:
-            _replace_file(record_path, text.encode("utf-8"))
+            replace_file(record_path, text.encode("utf-8"))
         except OSError as exc:
             raise DeliveryError(
                 f"the message was handed to SMTP ({outcome.status}) but {record_path} could not be "
