@@ -424,12 +424,14 @@ def _build(
         if worker is not None:
             # The PDF renders in the worker process while drafts and results are made here.
             with _timed(timings, "pdf"):
+                variant = config.output.pdf_variant if config.output.pdf_variant != "none" else None
                 worker.start(
                     pdf_html,
                     asset_dir=asset_dir(),
-                    pdf_variant=config.output.pdf_variant,
+                    pdf_variant=variant,
+                    # PDF/A-3 allows any attached file; the other variants get none
                     attachments=(("results.csv", results_csv(analysis, config.analysis)),)
-                    if config.output.pdf_variant
+                    if variant and variant.startswith("pdf/a-3")
                     else (),
                 )
         with _timed(timings, "drafts"):

@@ -156,7 +156,7 @@ def _trend(analysis: WeekAnalysis, seasonal: SeasonalContext) -> FigureItem:
                 thresholds[name] = float(value)
     fig = charts.trend_chart(
         weeks, current, past, baseline=seasonal.baseline, thresholds=thresholds or None,
-        season_start_week=_season_start(analysis, seasonal),
+        season_start_week=_season_start(analysis, seasonal), height_cm=6.6,
     )
     peaks = [float(np.nanmax(v)) for _, v in past if np.isfinite(v).any()]
     now = float(current[-1]) if current.size else math.nan
