@@ -35,6 +35,7 @@ from sitrep.errors import (
 
 if TYPE_CHECKING:
     from sitrep.config import Config
+    from sitrep.deliver.signing import PublicKey
     from sitrep.model import ValidationReport
 
 __all__ = ["EXIT_BLOCKED", "EXIT_DELIVERY", "EXIT_OK", "EXIT_USAGE", "main"]
@@ -135,12 +136,30 @@ def _parser() -> argparse.ArgumentParser:
     p.add_argument("--today", type=_date_arg, default=None, metavar="YYYY-MM-DD",
                    help="the day the check's future-week rule compares with (default: today)")
 
-    p = verb("verify", "recompute every checksum of an archived bundle")
+    p = verb("verify", "recompute every checksum of an archived bundle, check its signature or a chain")
     p.epilog = (
-        "exit codes: 0 every checksum matches · 1 a file is missing, changed or extra ·\n"
-        "2 the path is not a bundle folder"
+        "exit codes: 0 every checksum (and signature, and link) is good · 1 a file is missing,\n"
+        "changed or extra, a signature is missing, invalid or by an untrusted key, or a chain\n"
+        "link is broken · 2 the path is not a bundle (or jurisdiction) folder, or a key is unreadable"
     )
-    p.add_argument("bundle", type=Path, help="bundle folder, e.g. ARCHIVE/<jurisdiction>/2026-W47/v1")
+    p.add_argument("bundle", type=Path, nargs="?", default=None,
+                   help="bundle folder, e.g. ARCHIVE/<jurisdiction>/2026-W47/v1")
+    p.add_argument("--chain", type=Path, default=None, metavar="FOLDER",
+                   help="walk the hash chain of every bundle in ARCHIVE/<jurisdiction> instead")
+    p.add_argument("--public-key", type=Path, action="append", default=None, metavar="FILE",
+                   help="a trusted public key (PEM); repeat it for keys from before a rotation")
+    p.add_argument("--config", type=Path, default=None,
+                   help="take the trusted keys from output.trusted_keys of this configuration")
+
+    p = verb("keys", "create the key pair that signs archived bundles")
+    keys = p.add_subparsers(dest="keys_verb", metavar="ACTION", required=True)
+    k = keys.add_parser("init", help="write a new Ed25519 key pair into a folder",
+                        description="Write a new Ed25519 key pair (private 0600, public 0644) into "
+                        "FOLDER and print the public key's fingerprint. Keep the private key "
+                        "outside the archive and point output.signing_key at it.",
+                        epilog="exit codes: 0 written · 3 a key file exists (never overwritten)")
+    k.add_argument("--out", type=Path, required=True, metavar="FOLDER",
+                   help="folder for the key pair (created 0700 when missing)")
 
     p = verb("send", "e-mail an archived bundle's PDF")
     p.epilog = (
@@ -335,20 +354,84 @@ def _cmd_init(args: argparse.Namespace) -> int:
     return EXIT_BLOCKED if report.blocked else EXIT_OK
 
 
+_SIGNATURE_WORDS = {
+    "valid": "signed by {fp} (a trusted key) at {at}",
+    "valid-untrusted": "signed by {fp} at {at}; no trusted key was given (--public-key or "
+                       "output.trusted_keys), so this shows integrity, not who signed it",
+    "untrusted-key": "signed by {fp}, which is NOT a trusted key",
+    "invalid": "the signature is INVALID",
+    "missing": "the signature file is MISSING (the manifest records one by {fp})",
+    "unsigned": "unsigned (built without a signing key)",
+    "unsigned-before-chain": "unsigned (written before bundles were signed and chained)",
+}
+
+
+def _trusted_keys(args: argparse.Namespace) -> tuple[PublicKey, ...]:
+    from sitrep.deliver.signing import load_public_keys
+
+    paths = list(args.public_key or [])
+    if args.config is not None:
+        paths.extend(_load(args.config).output.trusted_keys)
+    return load_public_keys(paths)
+
+
 def _cmd_verify(args: argparse.Namespace) -> int:
     from sitrep.deliver.archive import verify_bundle
 
+    if (args.bundle is None) == (args.chain is None):
+        raise ConfigError("pass a bundle folder, or --chain ARCHIVE/<jurisdiction> (one of the two)")
+    trusted = _trusted_keys(args)
+    if args.chain is not None:
+        return _verify_chain(args.chain, trusted)
     if not args.bundle.is_dir():
         raise ConfigError(f"{args.bundle} is not a folder; pass ARCHIVE/<jurisdiction>/<year>-W<ww>/v<k>")
-    result = verify_bundle(args.bundle)
+    result = verify_bundle(args.bundle, trusted)
     for label, names in (("missing", result.missing), ("changed", result.changed), ("extra", result.extra)):
         for name in names:
             print(f"{label}: {name}")
     if not result.ok:
         for problem in result.problems:
             print(f"  {problem}")
-    print(f"{'OK' if result.ok else 'FAILED'}: {result.checked} file(s) checked in {args.bundle}")
+    words = _SIGNATURE_WORDS[result.signature].format(fp=result.signed_by, at=result.signed_at)
+    print(
+        f"{'OK' if result.ok else 'FAILED'}: {result.checked} file(s) checked in {args.bundle}; "
+        f"signature: {words}"
+    )
     return EXIT_OK if result.ok else EXIT_BLOCKED
+
+
+def _verify_chain(folder: Path, trusted: tuple[PublicKey, ...]) -> int:
+    from sitrep.deliver.chain import verify_chain
+
+    report = verify_chain(folder, trusted)
+    for link in report.links:
+        place = f"link {link.sequence}" if link.sequence is not None else "no link"
+        words = _SIGNATURE_WORDS.get(link.signature, link.signature).split(";")[0].format(fp="", at="")
+        print(f"{link.status:>12}  {link.bundle_id:<14} {place:<8} {words}")
+        for problem in link.problems:
+            print(f"              {problem}")
+    if report.head is not None:
+        print(
+            f"head: link {report.head.sequence} is {report.head.bundle_id}, checksum list SHA-256 "
+            f"{report.head.checksums_sha256}; compare it with the latest report you received "
+            "(a removed latest bundle leaves no broken link)"
+        )
+    if report.ok:
+        print(f"OK: {len(report.links)} bundle(s) in {folder}, no broken link")
+        return EXIT_OK
+    print(f"FAILED: first break at {report.first_break}")
+    return EXIT_BLOCKED
+
+
+def _cmd_keys(args: argparse.Namespace) -> int:
+    from sitrep.deliver.signing import generate_keys
+
+    files = generate_keys(args.out)
+    print(f"private key: {files.private} (mode 0600; keep it outside the archive, back it up)")
+    print(f"public key:  {files.public} (give it to auditors; list it in output.trusted_keys)")
+    print(f"fingerprint: {files.fingerprint}")
+    print(f'next: set output.signing_key = "{files.private.resolve()}" in the configuration')
+    return EXIT_OK
 
 
 def _resend_advice(bundle: Path, config_path: Path) -> str:
@@ -410,6 +493,7 @@ COMMANDS = {
     "check": _cmd_check,
     "init": _cmd_init,
     "verify": _cmd_verify,
+    "keys": _cmd_keys,
     "send": _cmd_send,
     "run": _cmd_run,
 }

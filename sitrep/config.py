@@ -199,6 +199,11 @@ class OutputSettings:
     pdf_variant: str | None = "pdf/ua-1"
     """WeasyPrint's PDF variant: "pdf/ua-1" (default) writes a tagged PDF with a structure tree for
     screen readers; "pdf/a-3b" an archival PDF with results.csv attached; "none" a plain PDF."""
+    signing_key: Path | None = None
+    """Ed25519 private key that signs each bundle's manifest (``sitrep keys init``); kept outside
+    the archive. ``$SITREP_SIGNING_KEY`` (a path) overrides it."""
+    trusted_keys: tuple[Path, ...] = ()
+    """Public keys ``sitrep verify --config`` accepts signatures from (old ones too, after a rotation)."""
 
 
 @dataclasses.dataclass(frozen=True)
@@ -337,6 +342,12 @@ def _coerce(hint: Any, value: Any, key: str, base_dir: Path) -> Any:
         ):
             raise ConfigError(f"{key} must be a list of {size} numbers, got {value!r}")
         return tuple(float(v) for v in value)
+    if origin is tuple and get_args(hint) == (Path, Ellipsis):
+        if isinstance(value, str):
+            value = [value]
+        if not isinstance(value, list):
+            raise ConfigError(f"{key} must be a list of path strings, got {value!r}")
+        return tuple(_coerce(Path, v, key, base_dir) for v in value)
     if origin is tuple:
         if isinstance(value, str):
             value = [value]

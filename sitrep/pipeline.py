@@ -32,6 +32,7 @@ if TYPE_CHECKING:
     from sitrep.analysis.week import WeekAnalysis
     from sitrep.analysis.weights import DistrictGraph
     from sitrep.deliver.archive import Bundle
+    from sitrep.deliver.signing import Signer
     from sitrep.render.context import ReportContext
 
 # The analysis, render and deliver stages are imported inside build(): check()
@@ -339,6 +340,7 @@ def _build(
     worker: Any,
 ) -> RunResult:
     """:func:`build` with the PDF worker already started."""
+    signer = _signer(config) if archive and config.output.archive is not None else None
     inputs = read_inputs(config, today=today or dt.date.today(), timings=timings)
     if inputs.validation.blocked:
         raise ValidationFailed(
@@ -477,10 +479,36 @@ def _build(
                 archived,
                 manifest,
                 reissue_reason=reissue_reason,
+                signer=signer,
             )
             log(f"archived bundle {bundle.path}")
         written = write_outputs(out_dir or config.output.folder, files)
     return RunResult(week, inputs.validation, written, bundle, analysis, context)
+
+
+def _signer(config: Config) -> Signer | None:
+    """The bundle signer from ``output.signing_key`` / ``$SITREP_SIGNING_KEY``, or None.
+
+    Loaded before any work so that a missing or unsafe key stops the run at
+    once; refused when the jurisdiction's latest bundle is signed and no key is
+    configured (an unsigned bundle may not follow a signed one).
+    """
+    from sitrep.deliver.archive import chain_head, jurisdiction_slug
+    from sitrep.deliver.signing import load_signer, signing_key_path
+
+    assert config.output.archive is not None
+    path = signing_key_path(config.output.signing_key)
+    if path is not None:
+        return load_signer(path)
+    head = chain_head(config.output.archive / jurisdiction_slug(config.report.jurisdiction))
+    if head is not None and head.signed:
+        raise ConfigError(
+            f"the latest archived bundle of {config.report.jurisdiction} ({head.bundle_id}) is "
+            "signed, but no signing key is configured; set output.signing_key (or "
+            "$SITREP_SIGNING_KEY) to the jurisdiction's key. An unsigned bundle may not follow "
+            "a signed one"
+        )
+    return None
 
 
 def _manifest(

@@ -6,6 +6,8 @@ Layout::
         report.pdf, report.html, draft.md, ..., inputs/..., figures/...
         manifest.json            per-file SHA-256 and size + what the caller recorded
         manifest-sha256.txt      "<sha256>  <name>" lines, accepted by ``sha256sum -c``
+        manifest.sig             Ed25519 signature over manifest-sha256.txt (signing.py; when a
+                                 key is configured)
     ARCHIVE/<jurisdiction slug>/<year>-W<ww>/v<k>.sent.json   (mail.py; outside the bundle)
     ARCHIVE/<jurisdiction slug>/<year>-W<ww>/v<k>.eml         (mail.py dry run; outside the bundle)
 
@@ -13,6 +15,13 @@ A published bundle is never changed. Immutability comes from exclusive
 creation and the checksum manifest, not from file permissions (root ignores
 ``chmod``). A new version (``v<k+1>``) is written only when a reissue reason is
 given, and its manifest names the version it supersedes.
+
+Every bundle's manifest also records its link in the jurisdiction's hash
+chain: a sequence number (1, 2, ... in the order bundles were published,
+reissues included) and the SHA-256 of the previous bundle's
+``manifest-sha256.txt``. Removing, replacing or reordering a past bundle
+breaks the next link (:mod:`sitrep.deliver.chain` walks it). Once a bundle of
+a jurisdiction is signed, the next one must be signed too.
 
 This module also owns the reproducibility clock: :func:`source_date_epoch`
 derives ``SOURCE_DATE_EPOCH`` from the report week and :func:`reproducible_env`
@@ -37,13 +46,24 @@ from collections.abc import Iterator, Mapping
 from pathlib import Path, PurePosixPath
 from typing import Any
 
+from sitrep.deliver.signing import (
+    SIGNATURE_FILE,
+    PublicKey,
+    Signer,
+    check_signature,
+    signature_document,
+)
 from sitrep.errors import ArchiveExists, DeliveryError
 
 __all__ = [
     "MANIFEST_JSON",
     "MANIFEST_SHA256",
     "Bundle",
+    "ChainLink",
     "VerifyResult",
+    "bundle_folders",
+    "chain_head",
+    "read_chain_link",
     "bundle_dir",
     "check_name",
     "check_outputs",
@@ -61,13 +81,15 @@ MANIFEST_JSON = "manifest.json"
 """Name of the JSON manifest inside a bundle."""
 MANIFEST_SHA256 = "manifest-sha256.txt"
 """Name of the ``sha256sum -c`` checksum list inside a bundle."""
-_RESERVED = frozenset({MANIFEST_JSON, MANIFEST_SHA256})
-_MANIFEST_KEYS = ("bundle", "files", "reissue")
+_RESERVED = frozenset({MANIFEST_JSON, MANIFEST_SHA256, SIGNATURE_FILE})
+_MANIFEST_KEYS = ("bundle", "files", "reissue", "chain", "signature")
 """Top-level manifest keys written by :func:`write_bundle`; callers may not pass them."""
 
 _COMPONENT = re.compile(r"^[A-Za-z0-9_][A-Za-z0-9._+-]*$")
 _WEEK = re.compile(r"^\s*(\d{4})\s*-?\s*W\s*(\d{1,2})\s*$", re.IGNORECASE)
 _VERSION_DIR = re.compile(r"^v([1-9][0-9]*)$")
+_WEEK_DIR = re.compile(r"^[0-9]{4}-W[0-9]{2}$")
+_LOCK_FILE = ".chain.lock"
 _SUM_LINE = re.compile(r"^([0-9a-f]{64}) [ *](.+)$")
 _TMP_PREFIX = ".tmp-"
 _SLUG_MAX = 64
@@ -108,6 +130,27 @@ class VerifyResult:
     extra: tuple[str, ...]
     checked: int
     problems: tuple[str, ...] = ()
+    signature: str = "unsigned"
+    """``unsigned``; ``unsigned-before-chain`` (a bundle from before signing and the
+    chain existed); or a :class:`~sitrep.deliver.signing.SignatureCheck` status:
+    ``valid``, ``valid-untrusted``, ``untrusted-key``, ``invalid``; or ``missing``
+    (the manifest says signed, ``manifest.sig`` is gone)."""
+    signed_by: str = ""
+    """Fingerprint of the signing key, when signed."""
+    signed_at: str = ""
+
+
+@dataclasses.dataclass(frozen=True)
+class ChainLink:
+    """A bundle's place in its jurisdiction's hash chain, as read from disk."""
+
+    bundle_id: str
+    """``<year>-W<ww>/v<k>``."""
+    path: Path
+    sequence: int
+    checksums_sha256: str
+    """SHA-256 of the bundle's ``manifest-sha256.txt``: what the next link records."""
+    signed: bool
 
 
 # --------------------------------------------------------------------------- names
@@ -365,6 +408,7 @@ def write_bundle(
     manifest: Mapping[str, Any],
     *,
     reissue_reason: str | None = None,
+    signer: Signer | None = None,
 ) -> Bundle:
     """Archive one week's outputs as a new, complete, checksummed bundle.
 
@@ -411,6 +455,9 @@ def write_bundle(
         ``reissue``, which this function writes.
     reissue_reason : str or None
         Why an archived week is issued again (``sitrep build --reissue``).
+    signer : Signer or None
+        Signs ``manifest-sha256.txt`` into ``manifest.sig``. Refused as missing
+        when the jurisdiction's latest bundle is signed (no silent downgrade).
 
     Returns
     -------
@@ -433,7 +480,13 @@ def write_bundle(
     version and the reissue reason, never on the archive location or the
     clock, so identical inputs give byte-identical bundles. The manifest's
     ``files`` maps each name to ``{"sha256", "size"}``; ``bundle`` records
-    ``jurisdiction``, ``jurisdiction_slug``, ``week`` and ``version``.
+    ``jurisdiction``, ``jurisdiction_slug``, ``week`` and ``version``;
+    ``chain`` the link (``sequence``, ``previous``: ``{"bundle", "manifest_sha256"}``
+    or null for the first); ``signature`` the key's fingerprint or null. The
+    chain head is read and the bundle published under a lock on the
+    jurisdiction folder, so two runs cannot both extend the same link. Only
+    ``manifest.sig`` records a clock (its signing time); Ed25519 signatures are
+    otherwise deterministic.
     """
     archive_root = Path(archive_root)
     names = _check_names(list(files), reserved=_RESERVED)
@@ -457,6 +510,29 @@ def write_bundle(
     week_dir = archive_root / slug / week
 
     _check_confined(archive_root, week_dir)
+    manifest_bytes(manifest)  # refuse a manifest that is not JSON before anything is created
+    _check_version(jurisdiction, week, week_dir, reissue_reason)  # again under the lock
+    fresh = not os.path.lexists(week_dir.parent)
+    for d in _make_dirs(week_dir.parent):
+        _fsync_dir(d)
+    try:
+        with _chain_lock(week_dir.parent):
+            return _write_bundle_locked(
+                archive_root, jurisdiction, week, week_dir, names, files, manifest,
+                reissue_reason, signer,
+            )
+    except BaseException:
+        if fresh:  # leave no empty jurisdiction folder (nor its lock file) behind
+            with contextlib.suppress(OSError):
+                os.unlink(week_dir.parent / _LOCK_FILE)
+                os.rmdir(week_dir.parent)
+        raise
+
+
+def _check_version(
+    jurisdiction: str, week: str, week_dir: Path, reissue_reason: str | None
+) -> list[int]:
+    """The week's existing versions; refuses a rebuild without a reason and a reissue of nothing."""
     existing = _versions(week_dir)
     if existing and reissue_reason is None:
         current = week_dir / f"v{existing[-1]}"
@@ -469,6 +545,22 @@ def write_bundle(
             f"--reissue was given but {jurisdiction} {week} has no archived bundle in {week_dir}; "
             "run without --reissue to publish v1"
         )
+    return existing
+
+
+def _write_bundle_locked(
+    archive_root: Path,
+    jurisdiction: str,
+    week: str,
+    week_dir: Path,
+    names: list[str],
+    files: Mapping[str, bytes],
+    manifest: Mapping[str, Any],
+    reissue_reason: str | None,
+    signer: Signer | None,
+) -> Bundle:
+    slug = week_dir.parent.name
+    existing = _check_version(jurisdiction, week, week_dir, reissue_reason)
     version = existing[-1] + 1 if existing else 1
 
     contents = {n: bytes(files[n]) for n in names}
@@ -484,10 +576,32 @@ def write_bundle(
     }
     if reissue_reason is not None:
         full_manifest["reissue"] = {"reason": reissue_reason, "supersedes": f"v{existing[-1]}"}
+    head = chain_head(week_dir.parent)
+    if head is not None and head.signed and signer is None:
+        raise DeliveryError(
+            f"the latest bundle of {jurisdiction} ({head.bundle_id}) is signed, and no signing key "
+            "is configured now; an unsigned bundle after a signed one is refused. Set "
+            "output.signing_key (or $SITREP_SIGNING_KEY) to the jurisdiction's key"
+        )
+    full_manifest["chain"] = {
+        "sequence": head.sequence + 1 if head else 1,
+        "previous": (
+            {"bundle": head.bundle_id, "manifest_sha256": head.checksums_sha256} if head else None
+        ),
+    }
+    full_manifest["signature"] = (
+        {"algorithm": "Ed25519", "fingerprint": signer.public.fingerprint, "file": SIGNATURE_FILE}
+        if signer is not None
+        else None
+    )
     contents[MANIFEST_JSON] = manifest_bytes(full_manifest)
     contents[MANIFEST_SHA256] = "".join(
         f"{_sha256(contents[n])}  {n}\n" for n in sorted(contents)
     ).encode("ascii")
+    if signer is not None:
+        contents[SIGNATURE_FILE] = signature_document(
+            signer, f"{week}/v{version}", contents[MANIFEST_SHA256], dt.datetime.now(dt.UTC)
+        )
 
     final = week_dir / f"v{version}"
     created = _make_dirs(week_dir)
@@ -538,6 +652,72 @@ def write_bundle(
     )
 
 
+@contextlib.contextmanager
+def _chain_lock(jurisdiction_dir: Path) -> Iterator[None]:
+    """An exclusive lock on the jurisdiction folder for reading the chain head and publishing."""
+    import fcntl
+
+    try:
+        fd = os.open(jurisdiction_dir / _LOCK_FILE, os.O_RDWR | os.O_CREAT | getattr(os, "O_NOFOLLOW", 0), 0o644)
+    except OSError as exc:
+        raise DeliveryError(f"cannot lock archive folder {jurisdiction_dir}: {exc}") from exc
+    try:
+        try:
+            fcntl.flock(fd, fcntl.LOCK_EX)
+        except OSError as exc:
+            if exc.errno != errno.ENOLCK:  # a file system without locks: verify --chain shows a fork
+                raise DeliveryError(f"cannot lock archive folder {jurisdiction_dir}: {exc}") from exc
+        yield
+    finally:
+        os.close(fd)
+
+
+def bundle_folders(jurisdiction_dir: Path) -> list[tuple[str, Path]]:
+    """Every ``<year>-W<ww>/v<k>`` folder of a jurisdiction, as ``(bundle id, path)``, sorted."""
+    found: list[tuple[str, int, Path]] = []
+    try:
+        weeks = [e for e in os.scandir(jurisdiction_dir) if _WEEK_DIR.match(e.name)]
+    except FileNotFoundError:
+        return []
+    except OSError as exc:
+        raise DeliveryError(f"cannot list archive folder {jurisdiction_dir}: {exc}") from exc
+    for w in weeks:
+        if w.is_dir(follow_symlinks=False):
+            for v in _versions(Path(w.path)):
+                found.append((w.name, v, Path(w.path) / f"v{v}"))
+    return [(f"{w}/v{v}", p) for w, v, p in sorted(found)]
+
+
+def read_chain_link(bundle_id: str, path: Path) -> ChainLink | None:
+    """The chain entry of one bundle, or None for a bundle without one (or unreadable)."""
+    try:
+        manifest = json.loads((path / MANIFEST_JSON).read_text(encoding="utf-8"))
+        chain = manifest["chain"]
+        sequence = chain["sequence"]
+        checksums = (path / MANIFEST_SHA256).read_bytes()
+    except (OSError, ValueError, KeyError, TypeError):
+        return None
+    if isinstance(sequence, bool) or not isinstance(sequence, int):
+        return None
+    return ChainLink(
+        bundle_id=bundle_id,
+        path=path,
+        sequence=sequence,
+        checksums_sha256=_sha256(checksums),
+        signed=isinstance(manifest.get("signature"), dict),
+    )
+
+
+def chain_head(jurisdiction_dir: Path) -> ChainLink | None:
+    """The chained bundle with the highest sequence number, or None before the first."""
+    links = [
+        link
+        for bundle_id, path in bundle_folders(jurisdiction_dir)
+        if (link := read_chain_link(bundle_id, path)) is not None
+    ]
+    return max(links, key=lambda link: link.sequence) if links else None
+
+
 def _make_dirs(target: Path) -> list[Path]:
     """Create the missing folders up to ``target``; return the parents to fsync."""
     missing: list[Path] = []
@@ -566,7 +746,7 @@ def _hash_file(path: Path) -> tuple[str, int]:
     return h.hexdigest(), size
 
 
-def verify_bundle(path: Path) -> VerifyResult:
+def verify_bundle(path: Path, trusted_keys: tuple[PublicKey, ...] = ()) -> VerifyResult:
     """Recompute every checksum of a bundle and compare with both manifests.
 
     Every name listed in ``manifest-sha256.txt`` or in ``manifest.json``'s
@@ -581,10 +761,21 @@ def verify_bundle(path: Path) -> VerifyResult:
     Mail sidecars (``v<k>.sent.json``, ``v<k>.eml``) live next to the bundle
     folder, not inside it, so they never count as extra.
 
+    When ``manifest.json`` records a signature, ``manifest.sig`` must be there
+    and sign this bundle's ``manifest-sha256.txt`` at this place (week and
+    version); with ``trusted_keys`` the signing key must be one of them, and an
+    unsigned bundle written since the chain exists fails. A bundle whose
+    manifest names another week or version than its folder fails too (a
+    moved or swapped bundle).
+
     Parameters
     ----------
     path : Path
         The bundle folder (``.../v<k>``).
+    trusted_keys : tuple of PublicKey
+        Public keys the signature must come from (``--public-key``,
+        ``output.trusted_keys``); empty: the signature is only checked for
+        consistency, which proves nothing against someone who re-signs.
 
     Returns
     -------
@@ -627,10 +818,13 @@ def verify_bundle(path: Path) -> VerifyResult:
         problems.append(f"{MANIFEST_SHA256} is missing")
 
     listed: dict[str, dict[str, Any]] = {}
+    manifest: dict[str, Any] = {}
     man_path = path / MANIFEST_JSON
     if man_path.is_file() and not man_path.is_symlink():
         try:
             manifest = json.loads(man_path.read_text(encoding="utf-8"))
+            if not isinstance(manifest, dict):
+                raise TypeError("not a JSON object")
             entries = manifest["files"]
             if not isinstance(entries, dict):
                 raise TypeError("'files' is not an object")
@@ -692,7 +886,12 @@ def verify_bundle(path: Path) -> VerifyResult:
                     f"{name}: size is {size} bytes, {MANIFEST_JSON} says {entry.get('size')}"
                 )
 
+    signature = _check_bundle_signature(path, manifest, trusted_keys, problems)
+    problems.extend(_check_place(path, manifest))
+
     known = set(expected) | {MANIFEST_SHA256, MANIFEST_JSON}
+    if signature.status != "unsigned" and signature.status != "unsigned-before-chain":
+        known.add(SIGNATURE_FILE)
     known_dirs = {str(p) for n in known for p in PurePosixPath(n).parents if str(p) != "."}
     extra: set[str] = set()
     for dirpath, dirnames, filenames in os.walk(path):
@@ -717,7 +916,73 @@ def verify_bundle(path: Path) -> VerifyResult:
         extra=tuple(sorted(extra)),
         checked=checked,
         problems=tuple(problems),
+        signature=signature.status,
+        signed_by=signature.fingerprint,
+        signed_at=signature.signed_at,
     )
+
+
+@dataclasses.dataclass(frozen=True)
+class _Signature:
+    status: str
+    fingerprint: str = ""
+    signed_at: str = ""
+
+
+def _check_bundle_signature(
+    path: Path, manifest: Mapping[str, Any], trusted: tuple[PublicKey, ...], problems: list[str]
+) -> _Signature:
+    """Check ``manifest.sig`` against what the manifest records; append what is wrong."""
+    sig_path = path / SIGNATURE_FILE
+    present = os.path.lexists(sig_path)
+    recorded = manifest.get("signature")
+    if not isinstance(recorded, dict):
+        if present:
+            problems.append(
+                f"{SIGNATURE_FILE} is present but {MANIFEST_JSON} records the bundle as unsigned"
+            )
+            return _Signature("invalid")
+        if "chain" not in manifest:
+            return _Signature("unsigned-before-chain")
+        if trusted:
+            problems.append(
+                "the bundle is unsigned, but a trusted key was given: it was built without a "
+                "signing key, or its signature was removed and both manifests rewritten"
+            )
+        return _Signature("unsigned")
+    fp = str(recorded.get("fingerprint", ""))
+    if not present:
+        problems.append(f"{SIGNATURE_FILE} is missing ({MANIFEST_JSON} records a signature by {fp})")
+        return _Signature("missing", fp)
+    if sig_path.is_symlink() or not sig_path.is_file():
+        problems.append(f"{SIGNATURE_FILE} is not a regular file")
+        return _Signature("invalid", fp)
+    try:
+        document = sig_path.read_bytes()
+        checksums = (path / MANIFEST_SHA256).read_bytes()
+    except OSError as exc:
+        problems.append(f"{SIGNATURE_FILE} cannot be checked: {exc}")
+        return _Signature("invalid", fp)
+    result = check_signature(document, checksums, f"{path.parent.name}/{path.name}", trusted)
+    problems.extend(result.problems)
+    if result.ok and result.fingerprint != fp:
+        problems.append(
+            f"{SIGNATURE_FILE} is signed by {result.fingerprint}, {MANIFEST_JSON} records {fp}"
+        )
+        return _Signature("invalid", result.fingerprint, result.signed_at)
+    return _Signature(result.status, result.fingerprint, result.signed_at)
+
+
+def _check_place(path: Path, manifest: Mapping[str, Any]) -> list[str]:
+    """A bundle must sit where its manifest says (week folder and version)."""
+    recorded = manifest.get("bundle")
+    if not isinstance(recorded, dict):
+        return []
+    if not (_WEEK_DIR.match(path.parent.name) and _VERSION_DIR.match(path.name)):
+        return []  # a copy outside an archive layout: nothing to compare with
+    here = f"{path.parent.name}/{path.name}"
+    there = f"{recorded.get('week')}/v{recorded.get('version')}"
+    return [] if here == there else [f"{MANIFEST_JSON} says this is bundle {there}, but it sits in {here}"]
 
 
 # --------------------------------------------------------------------------- plain output folder
