@@ -42,10 +42,19 @@ NUMERIC = frozenset({"sites", "ili_visits", "total_visits", "ili_pct", "ci", "ch
 
 
 class _Row(Protocol):
-    district_id: str
-    name: str
-    sort_pct: float
-    suppressed: bool
+    """What the table reads of a row besides the columns' display strings (a DistrictRow)."""
+
+    @property
+    def district_id(self) -> str: ...
+
+    @property
+    def name(self) -> str: ...
+
+    @property
+    def sort_pct(self) -> float: ...
+
+    @property
+    def suppressed(self) -> bool: ...
 
 
 @dataclasses.dataclass(frozen=True)
@@ -174,7 +183,8 @@ def district_table(
     listed = list(rows) if order == "given" else sorted(rows, key=_sort_key("district_id"))
     positions: dict[str, dict[int, int]] = {}
     for k in keys:
-        ranked = sorted(range(len(listed)), key=lambda i, f=_sort_key(k): (f(listed[i]), i))  # type: ignore[misc]
+        column_key = _sort_key(k)
+        ranked = sorted(range(len(listed)), key=lambda i: (column_key(listed[i]), i))  # noqa: B023 - used at once
         positions[k] = {i: p for p, i in enumerate(ranked)}
     columns = tuple(
         Column(k, words.HEADINGS[k].format(confidence=confidence_label), k in NUMERIC) for k in keys
