@@ -364,6 +364,7 @@ def _build(
         from sitrep.render.html import asset_dir, render_html
         from sitrep.render.report_figures import draw_report_figures
         from sitrep.render.results import results_csv, results_json, validation_json
+        from sitrep.render.wording.formats import fmt_week_dates
         from sitrep.versions import library_versions
 
     assert inputs.table is not None and inputs.districts is not None
@@ -404,7 +405,10 @@ def _build(
         )
         digits = context_digits(analysis, seasonal)
         with _timed(timings, "maps"):
-            figures = draw_report_figures(analysis, seasonal, inputs.districts, digits=digits)
+            figures = draw_report_figures(
+                analysis, seasonal, inputs.districts, digits=digits,
+                jurisdiction=config.report.jurisdiction, week_dates=fmt_week_dates(week.start, week.end),
+            )
         with _timed(timings, "html"):
             context = build_context(
                 analysis=analysis,

@@ -35,8 +35,9 @@ between paragraphs, table rows and figures are a few millimetres)."""
 
 
 def _pdf(demo_build) -> bytes:  # type: ignore[no-untyped-def]
+    """The demo week's first PDF, from its archived bundle (the output folder may hold a reissue)."""
     _, result, _ = demo_build
-    return next(p for p in result.outputs if p.name == "report.pdf").read_bytes()
+    return (result.bundle.path / "report.pdf").read_bytes()
 
 
 def _read_pgm(path: Path) -> np.ndarray:
@@ -244,7 +245,7 @@ def test_class_columns_sort_in_their_natural_order() -> None:
 
 def test_html_table_carries_the_sort_order(demo_build) -> None:  # type: ignore[no-untyped-def]
     _, result, _ = demo_build
-    html = next(p for p in result.outputs if p.name == "report.html").read_text(encoding="utf-8")
+    html = (result.bundle.path / "report.html").read_text(encoding="utf-8")
     table = html[html.index('id="district-table"') : html.index("</table>", html.index('id="district-table"'))]
     assert table.count("data-order=") >= len(result.context.districts) * 5
     ids = [r.cells[0].text for r in result.context.district_table.rows]

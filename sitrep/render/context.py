@@ -157,11 +157,7 @@ PDF_FINDINGS = 25
 """Most data-quality findings listed in the PDF."""
 
 def _month_range(start: Any, end: Any) -> str:
-    if start.year != end.year:
-        return f"{start.day} {start:%B %Y} to {end.day} {end:%B %Y}"
-    if start.month != end.month:
-        return f"{start.day} {start:%B} to {end.day} {end:%B %Y}"
-    return f"{start.day}–{end.day} {end:%B %Y}"
+    return fm.fmt_week_dates(start, end)
 
 
 def _f(x: Any) -> float:
