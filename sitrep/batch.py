@@ -44,6 +44,7 @@ from typing import Any, Literal
 from sitrep.config import Config, load_config
 from sitrep.errors import (
     AnalysisError,
+    ArchiveExists,
     ConfigError,
     DeliveryError,
     InputError,
@@ -62,12 +63,15 @@ __all__ = [
     "summary_table",
 ]
 
-Status = Literal["ok", "blocked", "failed"]
+Status = Literal["ok", "already-archived", "blocked", "failed"]
 
 _BUILD_LOCK = threading.Lock()
 
-EXIT_CODES = {"ok": 0, "blocked": 1, "usage": 2, "delivery": 3}
+EXIT_CODES = {"ok": 0, "blocked": 1, "usage": 2, "delivery": 3, "archived": 5}
 """The CLI's exit codes (``sitrep.cli.EXIT_*``; nothing may import the CLI, so they are repeated)."""
+
+_MILDEST = (EXIT_CODES["ok"], EXIT_CODES["archived"])
+"""Exit codes that report no fault, mildest first: a batch exits with another code when any job has one."""
 
 
 @dataclasses.dataclass(frozen=True)
@@ -82,15 +86,16 @@ class JobResult:
         ``report.jurisdiction`` (the file name when the file could not be loaded).
     week : str
         The report week, e.g. ``2026-W47`` ('' when the build stopped before it was known).
-    status : {"ok", "blocked", "failed"}
-        ``ok``: outputs written (and archived when asked). ``blocked``:
-        validation found an error; nothing was written. ``failed``: anything
-        else (configuration, input, analysis, render or delivery error, or a
-        worker that died).
+    status : {"ok", "already-archived", "blocked", "failed"}
+        ``ok``: outputs written (and archived when asked).
+        ``already-archived``: the week has a bundle and no reissue was asked
+        for; nothing was written. ``blocked``: validation found an error;
+        nothing was written. ``failed``: anything else (configuration, input,
+        analysis, render or delivery error, or a worker that died).
     exit_code : int
         What ``sitrep build`` would have exited with for this configuration
         alone: 0 ok, 1 blocked or unreadable input, 2 configuration error,
-        3 delivery failed.
+        3 delivery failed, 5 already archived.
     seconds : float
         Wall-clock time of the build where it ran.
     bundle : str or None
@@ -158,6 +163,8 @@ def _classify(exc: BaseException) -> tuple[Status, int, str]:
                 f"; first: {first.rule}" + (f" ({where})" if where else "") + f": {first.message}"
             )
         return "blocked", EXIT_CODES["blocked"], message
+    if isinstance(exc, ArchiveExists):
+        return "already-archived", EXIT_CODES["archived"], str(exc)
     if isinstance(exc, ConfigError):
         return "failed", EXIT_CODES["usage"], f"configuration error: {exc}"
     if isinstance(exc, DeliveryError):
@@ -191,7 +198,7 @@ def run_job(config: Config, label: str, options: _Options) -> JobResult:
             return JobResult(
                 label,
                 config.report.jurisdiction,
-                "",
+                getattr(exc, "week", None) or "",
                 status,
                 code,
                 time.perf_counter() - start,
@@ -393,8 +400,17 @@ def _check_distinct(jobs: Sequence[Job], options: _Options) -> None:
 
 
 def batch_exit_code(results: Sequence[JobResult]) -> int:
-    """0 when every job is ok, else the largest (worst) of their exit codes."""
-    return max((r.exit_code for r in results), default=0)
+    """0 when every job is ok, else the most serious of their exit codes.
+
+    A fault (1 blocked, 2 configuration, 3 delivery, and any other code) is
+    more serious than "already archived" (5), which is more serious than ok;
+    among faults the largest code wins.
+    """
+
+    def rank(code: int) -> tuple[int, int]:
+        return (_MILDEST.index(code), 0) if code in _MILDEST else (len(_MILDEST), code)
+
+    return max((r.exit_code for r in results), key=rank, default=0)
 
 
 def summary_table(results: Sequence[JobResult]) -> str:
@@ -430,9 +446,14 @@ def summary_table(results: Sequence[JobResult]) -> str:
     if problems:
         out.append("")
         out += [f"{r.status} {r.jurisdiction} ({r.config}): {r.message}" for r in problems]
-    counts = {s: sum(r.status == s for r in results) for s in ("ok", "blocked", "failed")}
+    counts = {
+        s: sum(r.status == s for r in results) for s in ("ok", "already-archived", "blocked", "failed")
+    }
+    archived = (
+        f"{counts['already-archived']} already archived, " if counts["already-archived"] else ""
+    )
     out.append(
-        f"{len(results)} jurisdiction(s): {counts['ok']} ok, {counts['blocked']} blocked, "
+        f"{len(results)} jurisdiction(s): {counts['ok']} ok, {archived}{counts['blocked']} blocked, "
         f"{counts['failed']} failed"
     )
     return "\n".join(out)

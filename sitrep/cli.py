@@ -7,6 +7,7 @@ Exit codes (also in ``sitrep --help``):
 1     blocked by validation (or an input could not be read)
 2     usage or configuration error
 3     delivery failed (archive, PDF engine or e-mail)
+5     already archived: the week has a bundle and nothing was built
 ====  ==========================================================
 
 Heavy libraries are imported only inside the verbs that need them, so
@@ -25,6 +26,7 @@ from typing import TYPE_CHECKING
 
 from sitrep.errors import (
     AnalysisError,
+    ArchiveExists,
     ConfigError,
     DeliveryError,
     InputError,
@@ -38,15 +40,17 @@ if TYPE_CHECKING:
     from sitrep.deliver.signing import PublicKey
     from sitrep.model import ValidationReport
 
-__all__ = ["EXIT_BLOCKED", "EXIT_DELIVERY", "EXIT_OK", "EXIT_USAGE", "main"]
+__all__ = ["EXIT_ARCHIVED", "EXIT_BLOCKED", "EXIT_DELIVERY", "EXIT_OK", "EXIT_USAGE", "main"]
 
 EXIT_OK = 0
 EXIT_BLOCKED = 1
 EXIT_USAGE = 2
 EXIT_DELIVERY = 3
+EXIT_ARCHIVED = 5
 
 EPILOG = """exit codes: 0 done · 1 blocked by validation or unreadable input ·
-2 usage or configuration error · 3 delivery failed (archive, PDF or e-mail)"""
+2 usage or configuration error · 3 delivery failed (archive, PDF or e-mail) ·
+5 already archived (nothing built: --no-archive to preview, --reissue to correct)"""
 
 
 def _demo_inputs() -> Path:
@@ -136,6 +140,18 @@ def _parser() -> argparse.ArgumentParser:
     p.add_argument("--today", type=_date_arg, default=None, metavar="YYYY-MM-DD",
                    help="the day the check's future-week rule compares with (default: today)")
 
+    p = verb("templates", "show where the packaged templates are, or copy them to start an override")
+    p.epilog = (
+        "Without --copy: prints the packaged template folder and its files. With --copy DIR:\n"
+        "writes them into DIR; then set report.template_dir = \"DIR\" and keep only the files you\n"
+        "change (missing ones fall back to the packaged templates). docs/templates.md lists the\n"
+        "variables each template receives.\n"
+        "exit codes: 0 done · 2 usage error (DIR holds a template file and --force is not given)"
+    )
+    p.add_argument("--copy", type=Path, default=None, metavar="DIR",
+                   help="write the packaged templates into DIR (created when missing)")
+    p.add_argument("--force", action="store_true", help="replace template files already in DIR")
+
     p = verb("verify", "recompute every checksum of an archived bundle, check its signature or a chain")
     p.epilog = (
         "exit codes: 0 every checksum (and signature, and link) is good · 1 a file is missing,\n"
@@ -160,6 +176,16 @@ def _parser() -> argparse.ArgumentParser:
                         epilog="exit codes: 0 written · 3 a key file exists (never overwritten)")
     k.add_argument("--out", type=Path, required=True, metavar="FOLDER",
                    help="folder for the key pair (created 0700 when missing)")
+
+    p = verb("check-draft", "compare an edited draft with the bundle it came from")
+    p.epilog = (
+        "exit codes: 0 nothing in the edit contradicts the bundle · 1 at least one figure, district,\n"
+        "week, direction word or caution would mislead (each is listed with its paragraph) ·\n"
+        "2 the bundle or the edited file cannot be read"
+    )
+    p.add_argument("bundle", type=Path, help="bundle folder, e.g. ARCHIVE/<jurisdiction>/2026-W47/v1")
+    p.add_argument("edited", type=Path, help="the edited draft: .docx, .md or .txt")
+    p.add_argument("--json", action="store_true", help="print the findings as JSON")
 
     p = verb("send", "e-mail an archived bundle's PDF")
     p.epilog = (
@@ -269,8 +295,6 @@ def _build(
             _print_findings(exc.report, sys.stderr)
         raise
     except DeliveryError as exc:
-        from sitrep.errors import ArchiveExists
-
         if demo and isinstance(exc, ArchiveExists):
             print(f"note: {exc}")
             result = pipeline.build(config, out_dir=out, archive=False, today=today,
@@ -354,6 +378,22 @@ def _cmd_init(args: argparse.Namespace) -> int:
     return EXIT_BLOCKED if report.blocked else EXIT_OK
 
 
+def _cmd_templates(args: argparse.Namespace) -> int:
+    from sitrep.render.html import packaged_template_dir
+    from sitrep.render.templates import TEMPLATES, copy_templates
+
+    if args.copy is None:
+        print(f"packaged templates: {packaged_template_dir()}")
+        for t in TEMPLATES:
+            print(f"  {t.name:<16} {t.purpose}")
+        print("copy them with: sitrep templates --copy DIR; variables: docs/templates.md")
+        return EXIT_OK
+    for path in copy_templates(args.copy, force=args.force):
+        print(f"wrote {path}")
+    print(f'set report.template_dir = "{args.copy}" and keep only the files you change')
+    return EXIT_OK
+
+
 _SIGNATURE_WORDS = {
     "valid": "signed by {fp} (a trusted key) at {at}",
     "valid-untrusted": "signed by {fp} at {at}; no trusted key was given (--public-key or "
@@ -434,6 +474,35 @@ def _cmd_keys(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
+def _cmd_check_draft(args: argparse.Namespace) -> int:
+    from sitrep.deliver.archive import verify_bundle
+    from sitrep.deliver.draft_check import as_json, check_draft, read_edited_draft
+
+    if not args.bundle.is_dir():
+        raise ConfigError(f"{args.bundle} is not a folder; pass ARCHIVE/<jurisdiction>/<year>-W<ww>/v<k>")
+    if (args.bundle / "manifest-sha256.txt").is_file() and not verify_bundle(args.bundle).ok:
+        raise ConfigError(
+            f"{args.bundle} fails `sitrep verify`; a draft cannot be checked against a changed bundle"
+        )
+    try:
+        paragraphs = read_edited_draft(args.edited)
+    except InputError as exc:
+        raise ConfigError(str(exc)) from None
+    findings = check_draft(args.bundle, paragraphs)
+    if args.json:
+        print(json.dumps(as_json(findings), indent=2, ensure_ascii=False))
+    else:
+        for f in findings:
+            print(f.line())
+        verdict = (
+            f"{len(findings)} place(s) in {args.edited.name} would mislead; fix them or ask the "
+            "surveillance team" if findings else
+            f"OK: {len(paragraphs)} paragraph(s) of {args.edited.name} agree with {args.bundle}"
+        )
+        print(verdict)
+    return EXIT_BLOCKED if findings else EXIT_OK
+
+
 def _resend_advice(bundle: Path, config_path: Path) -> str:
     return (
         "the message may or may not have been delivered. Check with a recipient whether it arrived "
@@ -492,7 +561,9 @@ COMMANDS = {
     "build": _cmd_build,
     "check": _cmd_check,
     "init": _cmd_init,
+    "templates": _cmd_templates,
     "verify": _cmd_verify,
+    "check-draft": _cmd_check_draft,
     "keys": _cmd_keys,
     "send": _cmd_send,
     "run": _cmd_run,
@@ -544,6 +615,9 @@ def main(argv: Sequence[str] | None = None) -> int:
     except (InputError, AnalysisError, RenderError) as exc:
         print(f"error: {exc}", file=sys.stderr)
         return EXIT_BLOCKED
+    except ArchiveExists as exc:  # nothing was to be delivered: not a delivery failure
+        print(str(exc), file=sys.stderr)
+        return EXIT_ARCHIVED
     except DeliveryError as exc:
         print(f"delivery failed: {exc}", file=sys.stderr)
         return EXIT_DELIVERY

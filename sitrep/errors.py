@@ -10,7 +10,7 @@ maps each branch to an exit code (see ``sitrep.cli``)::
     ├── AnalysisError        the statistics cannot be computed as asked       -> exit 1
     ├── RenderError          a template or figure could not be produced       -> exit 1
     └── DeliveryError        archive, PDF engine or e-mail failed             -> exit 3
-        └── ArchiveExists    the week is already archived (use --reissue)     -> exit 3
+        └── ArchiveExists    the week is already archived; nothing was built  -> exit 5
 
 Third-party errors are converted at the boundary with ``raise ... from exc`` so
 that a traceback never reaches the user.
@@ -68,4 +68,14 @@ class DeliveryError(SitrepError):
 
 
 class ArchiveExists(DeliveryError):
-    """The report week is already archived; a reissue must be asked for explicitly."""
+    """The report week is already archived; a reissue must be asked for explicitly.
+
+    Not a failure of delivery: nothing was to be delivered. The CLI says
+    "already archived" and exits 5; ``week`` and ``bundle`` (the latest
+    archived version) are set when known.
+    """
+
+    def __init__(self, message: str, *, week: str | None = None, bundle: str | None = None) -> None:
+        super().__init__(message)
+        self.week = week
+        self.bundle = bundle

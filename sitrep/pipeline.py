@@ -351,6 +351,8 @@ def _build(
         from sitrep.analysis.seasonal_context import seasonal_context
         from sitrep.analysis.week import analyse_week
         from sitrep.deliver.archive import (
+            already_archived,
+            bundle_dir,
             check_outputs,
             next_version,
             read_source_date_epoch,
@@ -360,6 +362,7 @@ def _build(
             write_outputs,
         )
         from sitrep.render.context import build_context, context_digits
+        from sitrep.render.dictionary import dictionary_csv
         from sitrep.render.draft import render_docx, render_email_body, render_markdown
         from sitrep.render.html import asset_dir, render_html
         from sitrep.render.report_figures import draw_report_figures
@@ -380,6 +383,15 @@ def _build(
             f"it holds {inputs.table.weeks[0]} to {inputs.table.weeks[-1]}"
         )
     log(f"report week {week} ({week.start:%d %b %Y} to {week.end:%d %b %Y})")
+    if archive and config.output.archive is not None and reissue_reason is None:
+        # Refuse an archived week before the analysis and rendering, not after them.
+        latest = next_version(config.output.archive, config.report.jurisdiction, str(week)) - 1
+        if latest >= 1:
+            raise already_archived(
+                config.report.jurisdiction,
+                str(week),
+                bundle_dir(config.output.archive, config.report.jurisdiction, str(week), latest),
+            )
     with _timed(timings, "weights"):
         graph = _graph(inputs.districts, config, log)
     with _timed(timings, "analysis"):
@@ -392,6 +404,7 @@ def _build(
             season_start_week=config.weeks.season_start_week,
         )
     versions = library_versions()
+    name = config.report.jurisdiction
     reissue = None
     version: int | None = None
     if archive and config.output.archive is not None:
@@ -436,7 +449,7 @@ def _build(
                     asset_dir=asset_dir(),
                     pdf_variant=variant,
                     # PDF/A-3 allows any attached file; the other variants get none
-                    attachments=(("results.csv", results_csv(analysis, config.analysis)),)
+                    attachments=(("results.csv", results_csv(analysis, config.analysis, jurisdiction=name)),)
                     if variant and variant.startswith("pdf/a-3")
                     else (),
                 )
@@ -445,8 +458,9 @@ def _build(
             files["draft.docx"] = render_docx(context)
             files["email.txt"] = render_email_body(context, config.report.template_dir).encode("utf-8")
     with _timed(timings, "results"):
-        files["results.csv"] = results_csv(analysis, config.analysis)
-        files["results.json"] = results_json(analysis, config.analysis)
+        files["results.csv"] = results_csv(analysis, config.analysis, jurisdiction=name)
+        files["results.json"] = results_json(analysis, config.analysis, jurisdiction=name)
+        files["results-dictionary.csv"] = dictionary_csv()
         files["validation.json"] = validation_json(inputs.validation)
     if worker is not None:
         with _timed(timings, "pdf"):

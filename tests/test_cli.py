@@ -96,8 +96,9 @@ def test_top_level_help_and_usage_errors(capsys: pytest.CaptureFixture[str]) -> 
 def test_exit_codes_match_the_documented_tables(monkeypatch: pytest.MonkeyPatch) -> None:
     # The table in the cli docstring ...
     table = dict(re.findall(r"^(\d)\s{2,}(\S.*)$", cli.__doc__ or "", flags=re.MULTILINE))
-    assert set(table) == {"0", "1", "2", "3"}
+    assert set(table) == {"0", "1", "2", "3", "5"}
     assert (cli.EXIT_OK, cli.EXIT_BLOCKED, cli.EXIT_USAGE, cli.EXIT_DELIVERY) == (0, 1, 2, 3)
+    assert cli.EXIT_ARCHIVED == 5 and table["5"].startswith("already archived")
     assert table["0"] == "done" and table["1"].startswith("blocked")
     assert table["2"].startswith("usage") and table["3"].startswith("delivery")
     # ... and the exception tree in the errors docstring: main() maps each class to its code.

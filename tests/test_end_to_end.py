@@ -18,6 +18,7 @@ from conftest import DEMO, ROOT, TODAY
 pytestmark = pytest.mark.slow
 
 OUTPUTS = ("report.html", "report.pdf", "draft.md", "draft.docx", "results.csv", "results.json",
+           "results-dictionary.csv",
            "validation.json", "manifest.json", "email.txt")
 FORBIDDEN = re.compile(r"\b(nan|NaN|inf|Infinity|None)\b|\{\{|\}\}")
 

@@ -151,7 +151,7 @@ def test_h03_url_fetcher_allows_only_data_and_own_assets(tmp_path: Path) -> None
 
 
 def test_h09_formula_cells_are_neutralised_in_every_csv(hostile: types.SimpleNamespace) -> None:
-    rows = list(csv.DictReader(io.StringIO(hostile.out["results.csv"].decode("utf-8"), newline="")))
+    rows = list(csv.DictReader(io.StringIO(hostile.out["results.csv"].decode("utf-8-sig"), newline="")))
     assert len(rows) == len(hostile.names)  # RFC 4180 quoting kept every row whole
     shown = dict(zip(hostile.week.ids, hostile.names, strict=True))
     for row in rows:
@@ -190,8 +190,10 @@ def test_h09_tab_cr_lf_prefixes_are_neutralised(hostile: types.SimpleNamespace) 
     table = analysis.table.copy()
     odd = ["\t=1+1", "\r=1", "\n=2", "=3", "@x", "+1", "-1", "plain"]
     table.loc[table.index[: len(odd)], "district_name"] = odd
-    data = results_csv(dataclasses.replace(analysis, table=table), hostile.week.config().analysis)
-    rows = list(csv.DictReader(io.StringIO(data.decode("utf-8"), newline="")))
+    data = results_csv(
+        dataclasses.replace(analysis, table=table), hostile.week.config().analysis, jurisdiction="J"
+    )
+    rows = list(csv.DictReader(io.StringIO(data.decode("utf-8-sig"), newline="")))
     assert [r["district_name"] for r in rows[: len(odd)]] == ["'" + v for v in odd[:-1]] + ["plain"]
 
 

@@ -109,7 +109,7 @@ def test_h01_island_and_orphaned_district_are_never_clusters(plain: types.Simple
 
     # end to end: the island of the invented week is labelled, with no p-value, in every output
     week, out = plain.week, plain.out
-    rows = {r["district_id"]: r for r in csv.DictReader(io.StringIO(out["results.csv"].decode()))}
+    rows = {r["district_id"]: r for r in csv.DictReader(io.StringIO(out["results.csv"].decode("utf-8-sig")))}
     island = rows[week.ids[-1]]
     assert (island["cluster_label"], island["p_value"], island["q_value"]) == ("no neighbours", "", "")
     districts = json.loads(out["results.json"])["districts"]
@@ -256,7 +256,7 @@ def test_h17_zero_denominator_district_is_shown_without_a_rate(
     row = next(r for r in quality.result.context.districts if r.district_id == "D07")
     assert row.total_visits == "0" and not re.search(r"\d", row.ili_pct)
     assert row.ci == "—" and row.change == "—"
-    csv_row = next(r for r in csv.DictReader(io.StringIO(quality.out["results.csv"].decode()))
+    csv_row = next(r for r in csv.DictReader(io.StringIO(quality.out["results.csv"].decode("utf-8-sig")))
                    if r["district_id"] == "D07")
     assert csv_row["ili_percent"] == "" and csv_row["change_relative"] == ""
     assert quality.result.analysis.clusters.labels[

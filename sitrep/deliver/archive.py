@@ -61,6 +61,7 @@ __all__ = [
     "Bundle",
     "ChainLink",
     "VerifyResult",
+    "already_archived",
     "bundle_folders",
     "chain_head",
     "read_chain_link",
@@ -247,6 +248,23 @@ def _versions(week_dir: Path) -> list[int]:
         int(m.group(1))
         for e in entries
         if (m := _VERSION_DIR.match(e.name)) and e.is_dir(follow_symlinks=False)
+    )
+
+
+def already_archived(jurisdiction: str, week_label: str, current: Path) -> ArchiveExists:
+    """The error for a week that is archived when no reissue was asked for.
+
+    It says that nothing was built or written, and names the two ways on:
+    ``--no-archive`` to preview the week again, ``--reissue`` to publish a
+    correction.
+    """
+    return ArchiveExists(
+        f"{jurisdiction} {week_label} is already archived as {current}; a published week is "
+        "never overwritten and nothing was written. To look at the report again without "
+        "archiving, run sitrep build --no-archive; to publish a corrected version, run "
+        'sitrep build --reissue "<reason>"',
+        week=week_label,
+        bundle=str(current),
     )
 
 
@@ -535,11 +553,7 @@ def _check_version(
     """The week's existing versions; refuses a rebuild without a reason and a reissue of nothing."""
     existing = _versions(week_dir)
     if existing and reissue_reason is None:
-        current = week_dir / f"v{existing[-1]}"
-        raise ArchiveExists(
-            f"{jurisdiction} {week} is already archived as {current}; a published week is never "
-            'overwritten. To publish a corrected version run sitrep build --reissue "<reason>"'
-        )
+        raise already_archived(jurisdiction, week, week_dir / f"v{existing[-1]}")
     if not existing and reissue_reason is not None:
         raise DeliveryError(
             f"--reissue was given but {jurisdiction} {week} has no archived bundle in {week_dir}; "
@@ -623,16 +637,20 @@ def _write_bundle_locked(
             _fsync_dir(d)
         if os.path.lexists(final):
             raise ArchiveExists(
-                f"{final} appeared while this bundle was being written (another sitrep run?); "
-                "nothing was overwritten"
+                f"{final} was already archived by another sitrep run while this one was writing "
+                "it; nothing was overwritten",
+                week=week,
+                bundle=str(final),
             )
         try:
             os.rename(tmp, final)
         except OSError as exc:
             if exc.errno in (errno.EEXIST, errno.ENOTEMPTY, errno.EISDIR, errno.ENOTDIR):
                 raise ArchiveExists(
-                    f"{final} already exists (another sitrep run published it first); "
-                    "nothing was overwritten"
+                    f"{final} was already archived by another sitrep run that published it first; "
+                    "nothing was overwritten",
+                    week=week,
+                    bundle=str(final),
                 ) from exc
             raise
         tmp = None

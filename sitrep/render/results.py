@@ -1,6 +1,10 @@
 """Machine-readable results: results.csv, results.json and validation.json.
 
-Text cells that a spreadsheet would evaluate as a formula (starting with
+results.csv is UTF-8 with a byte order mark (a spreadsheet opened by
+double-click then shows accented names correctly); results.json and
+validation.json are plain UTF-8. Counts are whole numbers (``12``, not
+``12.0``) and a missing value is an empty field (``null`` in JSON). Every
+column and key is described in :mod:`sitrep.render.dictionary`. Text cells that a spreadsheet would evaluate as a formula (starting with
 ``=``, ``+``, ``-``, ``@``, TAB, CR or LF) are prefixed with an apostrophe
 (OWASP ASVS 1.2.10 guidance on CSV injection); numbers are written as numbers.
 Suppressed districts' values are blanked unless the configuration keeps them.
@@ -13,19 +17,33 @@ import json
 import math
 from typing import Any
 
+import pandas as pd
+
 from sitrep.analysis.week import WeekAnalysis
 from sitrep.config import AnalysisSettings
 from sitrep.model import ValidationReport
+from sitrep.render.dictionary import BOM
 
-__all__ = ["RESULT_COLUMNS", "csv_field", "neutralise_formula", "results_csv", "results_json", "validation_json"]
+__all__ = [
+    "COUNT_COLUMNS",
+    "RESULT_COLUMNS",
+    "csv_field",
+    "neutralise_formula",
+    "results_csv",
+    "results_json",
+    "validation_json",
+]
 
 RESULT_COLUMNS = (
-    "district_id", "district_name", "week", "reporting_sites", "ili_visits", "total_visits",
+    "jurisdiction", "week", "week_start", "week_end",
+    "district_id", "district_name", "reporting_sites", "ili_visits", "total_visits",
     "ili_percent", "ci_low", "ci_high", "suppressed", "prior_ili_percent",
     "prior_ili_percent_published", "change_pp", "change_low_pp", "change_high_pp",
     "change_relative", "change_from_zero", "change_p", "change_class", "tercile", "eb_percent",
     "local_i", "p_value", "q_value", "cluster_label", "prior_cluster_label", "transition",
 )
+COUNT_COLUMNS = ("reporting_sites", "ili_visits", "total_visits")
+"""Columns holding counts: written as whole numbers."""
 _SUPPRESSIBLE = ("ili_visits", "ili_percent", "ci_low", "ci_high", "change_pp", "change_low_pp",
                  "change_high_pp", "change_relative", "change_p", "eb_percent")
 _TRIGGERS = ("=", "+", "-", "@", "\t", "\r", "\n")
@@ -40,16 +58,27 @@ def neutralise_formula(text: str) -> str:
     return "'" + text if text.startswith(_TRIGGERS) else text
 
 
-def _records(analysis: WeekAnalysis, settings: AnalysisSettings) -> list[dict[str, Any]]:
+def _records(
+    analysis: WeekAnalysis, settings: AnalysisSettings, jurisdiction: str
+) -> list[dict[str, Any]]:
     out = []
+    fixed = {
+        "jurisdiction": jurisdiction,
+        "week_start": analysis.week.start.isoformat(),
+        "week_end": analysis.week.end.isoformat(),
+    }
     for rec in analysis.table.to_dict("records"):
         row = {}
         for col in RESULT_COLUMNS:
-            value = rec.get(col)
+            value = fixed[col] if col in fixed else rec.get(col)
             if hasattr(value, "item"):
                 value = value.item()
+            if value is not None and not isinstance(value, (str, bool)) and pd.isna(value):
+                value = None  # NaN and pandas' NA
             if isinstance(value, float) and not math.isfinite(value):
                 value = None
+            if col in COUNT_COLUMNS and isinstance(value, float) and value.is_integer():
+                value = int(value)
             row[col] = value
         if row["suppressed"] and not settings.keep_suppressed_values:
             for col in _SUPPRESSIBLE:
@@ -74,16 +103,19 @@ def csv_field(text: str) -> str:
     return text
 
 
-def results_csv(analysis: WeekAnalysis, settings: AnalysisSettings) -> bytes:
-    """The per-district table as UTF-8 CSV (RFC 4180 quoting by :func:`csv_field`, LF line ends).
+def results_csv(analysis: WeekAnalysis, settings: AnalysisSettings, *, jurisdiction: str) -> bytes:
+    """The per-district table as CSV: UTF-8 with a byte order mark, RFC 4180 quoting by
+    :func:`csv_field`, LF line ends.
 
-    Text cells pass through :func:`neutralise_formula` first; numbers are
-    written with ``repr`` after rounding to 10 decimals, booleans as
-    ``true``/``false``, missing values as empty fields.
+    ``jurisdiction`` (``report.jurisdiction``) fills the first column, so that
+    weekly files of several jurisdictions stack. Text cells pass through
+    :func:`neutralise_formula` first; counts (:data:`COUNT_COLUMNS`) are whole
+    numbers, other numbers are written with ``repr`` after rounding to 10
+    decimals, booleans as ``true``/``false``, missing values as empty fields.
     """
     buffer = io.StringIO()
     buffer.write(",".join(csv_field(c) for c in RESULT_COLUMNS) + "\n")
-    for row in _records(analysis, settings):
+    for row in _records(analysis, settings, jurisdiction):
         cells = []
         for col in RESULT_COLUMNS:
             value = row[col]
@@ -98,11 +130,11 @@ def results_csv(analysis: WeekAnalysis, settings: AnalysisSettings) -> bytes:
             else:
                 cells.append(neutralise_formula(str(value)))
         buffer.write(",".join(csv_field(c) for c in cells) + "\n")
-    return buffer.getvalue().encode("utf-8")
+    return BOM + buffer.getvalue().encode("utf-8")
 
 
-def results_json(analysis: WeekAnalysis, settings: AnalysisSettings) -> bytes:
-    """The per-district table and the jurisdiction summary as JSON."""
+def results_json(analysis: WeekAnalysis, settings: AnalysisSettings, *, jurisdiction: str) -> bytes:
+    """The per-district table (the rows of results.csv) and the jurisdiction summary as JSON."""
     j = analysis.jurisdiction
 
     def clean(x: Any) -> Any:
@@ -124,10 +156,13 @@ def results_json(analysis: WeekAnalysis, settings: AnalysisSettings) -> bytes:
     }
     doc = {
         "week": str(analysis.week),
+        "week_start": analysis.week.start.isoformat(),
+        "week_end": analysis.week.end.isoformat(),
         "prior_week": str(analysis.prior_week) if analysis.prior_week else None,
+        "jurisdiction_name": jurisdiction,
         "jurisdiction": summary,
         "tercile_cuts": list(analysis.terciles.cuts) if analysis.terciles.cuts else None,
-        "districts": _records(analysis, settings),
+        "districts": _records(analysis, settings, jurisdiction),
     }
     return (json.dumps(doc, indent=2, sort_keys=True, ensure_ascii=False) + "\n").encode("utf-8")
 

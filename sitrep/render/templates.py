@@ -1,0 +1,184 @@
+"""The packaged templates: which there are, what each receives, and copying them to start an override.
+
+A jurisdiction overrides a template by putting a file of the same name in the
+folder named by ``report.template_dir`` (see :func:`sitrep.render.html.environment`);
+``sitrep templates --copy DIR`` writes the packaged files there to start from.
+What each template receives is read from the templates themselves (every
+``c.<field>`` they use) and from :class:`~sitrep.render.context.ReportContext`,
+so docs/templates.md, which ``python tools/make_templates_doc.py`` writes from
+:func:`templates_markdown`, cannot drift from the code.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import os
+import shutil
+from pathlib import Path
+
+import jinja2
+import jinja2.nodes
+
+from sitrep.errors import ConfigError
+from sitrep.render.context import DistrictRow, IndicatorRow, QualityItem, ReportContext
+from sitrep.render.html import environment, packaged_template_dir
+from sitrep.render.report_figures import FigureItem
+
+__all__ = ["TEMPLATES", "Template", "context_fields", "copy_templates", "templates_markdown"]
+
+
+@dataclasses.dataclass(frozen=True)
+class Template:
+    """One packaged template file.
+
+    Attributes
+    ----------
+    name : str
+        File name in the template folder.
+    purpose : str
+        What it makes.
+    variables : tuple of (str, str, str)
+        ``(name, type, meaning)`` of each variable the renderer passes in.
+    included_by : str
+        The template that includes this file (it then sees that template's
+        variables), or "".
+    """
+
+    name: str
+    purpose: str
+    variables: tuple[tuple[str, str, str], ...] = ()
+    included_by: str = ""
+
+
+_C = ("c", "ReportContext", "the report's ready-made strings (fields below)")
+
+TEMPLATES: tuple[Template, ...] = (
+    Template(
+        "report.html.j2",
+        "the report: report.html, and report.pdf from the same template",
+        (
+            _C,
+            ("for_pdf", "bool", "true when rendering for the PDF (top districts only, print layout)"),
+            ("font_face", "str", "CSS @font-face rules for the shipped fonts (empty for the HTML)"),
+        ),
+    ),
+    Template(
+        "draft.md.j2",
+        "draft.md, the communications draft (draft.docx is built from the same fields in code)",
+        (("c", "ReportContext", "as for the report, every text already escaped for Markdown"),),
+    ),
+    Template("email.txt.j2", "email.txt, the body of the e-mail", (_C,)),
+    Template("report.css", "the report's style sheet (HTML and PDF)", included_by="report.html.j2"),
+    Template("sort_table.js", "the sorting of the HTML district table", included_by="report.html.j2"),
+)
+"""Every file of the packaged template folder, with what it receives."""
+
+_ROWS = {
+    "indicators": IndicatorRow,
+    "districts": DistrictRow,
+    "districts_pdf": DistrictRow,
+    "quality": QualityItem,
+    "quality_pdf": QualityItem,
+    "figures": FigureItem,
+}
+"""Context fields holding rows: their item type, whose fields a loop can use."""
+
+
+def context_fields(name: str, template_dir: Path | None = None) -> tuple[str, ...]:
+    """The ``c.<field>`` names a template uses, in order of first use (also via its includes).
+
+    Reads the packaged template, or the override in ``template_dir`` when it has one.
+
+    Raises
+    ------
+    jinja2.TemplateSyntaxError
+        If the template (or one it includes) cannot be parsed.
+    """
+    env = environment(template_dir)
+    loader = env.loader
+    assert loader is not None
+    seen: list[str] = []
+    pending = [name]
+    done: set[str] = set()
+    while pending:
+        current = pending.pop(0)
+        if current in done:
+            continue
+        done.add(current)
+        source, filename, _ = loader.get_source(env, current)
+        tree = env.parse(source, current, filename)
+        for node in tree.find_all(jinja2.nodes.Getattr):
+            if isinstance(node.node, jinja2.nodes.Name) and node.node.name == "c" and node.attr not in seen:
+                seen.append(node.attr)
+        for inc in tree.find_all(jinja2.nodes.Include):
+            if isinstance(inc.template, jinja2.nodes.Const) and str(inc.template.value).endswith(".j2"):
+                pending.append(str(inc.template.value))
+    return tuple(seen)
+
+
+def copy_templates(folder: Path, *, force: bool = False) -> tuple[Path, ...]:
+    """Write every packaged template into ``folder`` (created when missing).
+
+    Refuses, writing nothing, when one of the files is already there, unless
+    ``force``; returns the paths written. Point ``report.template_dir`` at the
+    folder and keep only the files you change: missing ones fall back to the
+    packaged templates.
+
+    Raises
+    ------
+    ConfigError
+        If ``folder`` exists and is not a folder, or would overwrite files without ``force``.
+    """
+    folder = Path(folder)
+    if folder.exists() and not folder.is_dir():
+        raise ConfigError(f"{folder} exists and is not a folder; give a folder for the templates")
+    source = packaged_template_dir()
+    names = [t.name for t in TEMPLATES]
+    clash = [n for n in names if os.path.lexists(folder / n)]
+    if clash and not force:
+        raise ConfigError(
+            f"{folder} already holds {', '.join(clash)}; nothing was copied. Use --force to "
+            "replace them with the packaged templates, or choose an empty folder"
+        )
+    folder.mkdir(parents=True, exist_ok=True)
+    written = []
+    for n in names:
+        target = folder / n
+        if target.is_symlink():
+            target.unlink()  # replace the link itself, never the file it points to
+        shutil.copyfile(source / n, target)
+        written.append(target)
+    return tuple(written)
+
+
+def _type(annotation: object) -> str:
+    return str(annotation).replace("typing.", "")
+
+
+def templates_markdown() -> str:
+    """The generated part of docs/templates.md: each template, its variables and the fields it uses."""
+    fields = {f.name: f for f in dataclasses.fields(ReportContext)}
+    out: list[str] = []
+    for t in TEMPLATES:
+        out += [f"## `{t.name}`", "", f"Makes {t.purpose}."]
+        if t.included_by:
+            out += ["", f"Included by `{t.included_by}`, so it sees the same variables; the "
+                    "packaged file uses none."]
+            out.append("")
+            continue
+        out += ["", "Variables:", ""]
+        out += [f"- `{n}` ({kind}): {meaning}" for n, kind, meaning in t.variables]
+        used = context_fields(t.name)
+        out += ["", "Fields of `c` the packaged template uses:", "", "| field | type |", "| --- | --- |"]
+        out += [f"| `c.{n}` | `{_type(fields[n].type)}` |" for n in used]
+        out.append("")
+    out += ["## Every field of `c` (ReportContext)", "", "| field | type |", "| --- | --- |"]
+    out += [f"| `{f.name}` | `{_type(f.type)}` |" for f in dataclasses.fields(ReportContext)]
+    out.append("")
+    for field, row in _ROWS.items():
+        if not dataclasses.is_dataclass(row):  # pragma: no cover - every row type is a dataclass
+            continue
+        members = ", ".join(f"`{f.name}`" for f in dataclasses.fields(row))
+        out.append(f"- each item of `c.{field}` (`{row.__name__}`) has {members}")
+    out.append("")
+    return "\n".join(out)
