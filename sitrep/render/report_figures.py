@@ -189,7 +189,7 @@ def _trend(analysis: WeekAnalysis, seasonal: SeasonalContext, digits: int) -> Fi
     fig = charts.trend_chart(
         weeks, current, past, baseline=seasonal.baseline, thresholds=thresholds or None,
         week_labels=ticks, x_label=words.trend_x_label(dates=True, season=seasonal.season_label),
-        value_digits=digits, max_ticks=9, height_cm=6.6,
+        value_digits=digits, max_ticks=9, height_cm=6.0,
     )
     peaks = [float(np.nanmax(v)) for _, v in past if np.isfinite(v).any()]
     now = float(current[-1]) if current.size else math.nan
