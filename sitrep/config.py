@@ -135,9 +135,11 @@ class AnalysisSettings:
     confidence: float = 0.95
     interval: Literal["wilson", "clopper-pearson"] = "wilson"
     min_visits: int = 30
-    """Districts with fewer visits are suppressed in displays."""
-    keep_suppressed_values: bool = False
-    """Keep suppressed districts' values in results.csv/json (never in displays)."""
+    """A district with fewer visits in a week is withheld that week (primary suppression)."""
+    min_count: int = 5
+    """A district whose ILI count is 1 to min_count - 1 is withheld (0 switches the rule off)."""
+    suppress_zero: bool = False
+    """Also withhold a zero ILI count."""
     change_test: Literal["pooled-z", "poisson-score"] = "pooled-z"
     change_alpha: float = 0.05
     min_change_pp: float = 0.5
@@ -199,6 +201,9 @@ class OutputSettings:
     pdf_variant: str | None = "pdf/ua-1"
     """WeasyPrint's PDF variant: "pdf/ua-1" (default) writes a tagged PDF with a structure tree for
     screen readers; "pdf/a-3b" an archival PDF with results.csv attached; "none" a plain PDF."""
+    keep_suppressed_values: bool = False
+    """Also write the true values of withheld districts, only into the bundle's internal file
+    internal-results-UNSUPPRESSED.csv (never attached or e-mailed)."""
     signing_key: Path | None = None
     """Ed25519 private key that signs each bundle's manifest (``sitrep keys init``); kept outside
     the archive. ``$SITREP_SIGNING_KEY`` (a path) overrides it."""
@@ -297,6 +302,11 @@ def _build(cls: type[Any], raw: Any, where: str, base_dir: Path) -> Any:
         raise ConfigError(f"[{where}] must be a table of keys, got {type(raw).__name__}")
     fields = {f.name: f for f in dataclasses.fields(cls) if f.name != "source"}
     unknown = sorted(set(raw) - set(fields))
+    if where == "analysis" and "keep_suppressed_values" in unknown:
+        raise ConfigError(
+            "analysis.keep_suppressed_values has moved: set keep_suppressed_values in [output] "
+            "(true values then go only to the internal file internal-results-UNSUPPRESSED.csv)"
+        )
     if unknown:
         place = f"[{where}]" if where else "the top level"
         raise ConfigError(
@@ -409,6 +419,7 @@ def _check_ranges(c: Config) -> None:
         (0 < a.fdr_q < 1, "analysis.fdr_q must be between 0 and 1", a.fdr_q),
         (0 < a.change_alpha < 1, "analysis.change_alpha must be between 0 and 1", a.change_alpha),
         (a.min_visits >= 0, "analysis.min_visits must not be negative", a.min_visits),
+        (a.min_count >= 0, "analysis.min_count must not be negative", a.min_count),
         (a.min_change_pp >= 0, "analysis.min_change_pp must not be negative", a.min_change_pp),
         (a.knn_k >= 1, "analysis.knn_k must be at least 1", a.knn_k),
         (a.link_islands_k >= 0, "analysis.link_islands_k must not be negative", a.link_islands_k),

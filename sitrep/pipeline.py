@@ -366,7 +366,14 @@ def _build(
         from sitrep.render.draft import render_docx, render_email_body, render_markdown
         from sitrep.render.html import asset_dir, render_html
         from sitrep.render.report_figures import draw_report_figures
-        from sitrep.render.results import results_csv, results_json, validation_json
+        from sitrep.render.results import (
+            INTERNAL_RESULTS,
+            internal_results_csv,
+            redact_findings,
+            results_csv,
+            results_json,
+            validation_json,
+        )
         from sitrep.render.wording.formats import fmt_week_dates
         from sitrep.versions import library_versions
 
@@ -395,14 +402,19 @@ def _build(
     with _timed(timings, "weights"):
         graph = _graph(inputs.districts, config, log)
     with _timed(timings, "analysis"):
+        earlier = _earlier_publications(config, week) if archive else {}
         analysis = analyse_week(
-            inputs.table, inputs.prior, inputs.districts, graph, config.analysis, week=week
+            inputs.table, inputs.prior, inputs.districts, graph, config.analysis, week=week,
+            earlier=earlier,
         )
     with _timed(timings, "thresholds"):
         seasonal = seasonal_context(
             inputs.history, inputs.table, week, config.seasonal,
             season_start_week=config.weeks.season_start_week,
         )
+    published_validation = redact_findings(
+        inputs.validation, analysis.disclosure.this_week.ids | analysis.disclosure.prior_week.ids
+    )
     versions = library_versions()
     name = config.report.jurisdiction
     reissue = None
@@ -426,7 +438,7 @@ def _build(
             context = build_context(
                 analysis=analysis,
                 seasonal=seasonal,
-                validation=inputs.validation,
+                validation=published_validation,
                 figures=figures,
                 config=config,
                 versions=versions,
@@ -461,7 +473,11 @@ def _build(
         files["results.csv"] = results_csv(analysis, config.analysis, jurisdiction=name)
         files["results.json"] = results_json(analysis, config.analysis, jurisdiction=name)
         files["results-dictionary.csv"] = dictionary_csv()
-        files["validation.json"] = validation_json(inputs.validation)
+        files["validation.json"] = validation_json(published_validation)
+        if config.output.keep_suppressed_values:
+            files[INTERNAL_RESULTS] = internal_results_csv(
+                analysis, config.analysis, jurisdiction=name
+            )
     if worker is not None:
         with _timed(timings, "pdf"):
             pdf = worker.result()
@@ -502,6 +518,36 @@ def _build(
             log(f"archived bundle {bundle.path}")
         written = write_outputs(out_dir or config.output.folder, files)
     return RunResult(week, inputs.validation, written, bundle, analysis, context)
+
+
+def _earlier_publications(config: Config, week: EpiWeek) -> dict[str, Any]:
+    """What the archived reports of this week and last week published and withheld.
+
+    Read from every version's results.json under ``output.archive`` (docs/methods.md §6.2):
+    a district withheld there stays withheld, and counts shown there count as known.
+    """
+    from sitrep.analysis.disclosure import Earlier
+    from sitrep.deliver.archive import archived_results
+    from sitrep.render.results import earlier_publication
+
+    root = config.output.archive
+    if root is None:
+        return {}
+    out: dict[str, Earlier] = {}
+    for label in (week.label, (week - 1).label):
+        merged = Earlier()
+        for report_week in dict.fromkeys((label, week.label)):
+            for path, data in archived_results(root, config.report.jurisdiction, report_week):
+                try:
+                    found = earlier_publication(json.loads(data), label)
+                except (ValueError, UnicodeDecodeError) as exc:
+                    raise InputError(
+                        f"{path}: cannot read the archived results ({exc}); small counts could not "
+                        "be kept withheld across report versions, so nothing was built"
+                    ) from exc
+                merged = merged.merged(found)
+        out[label] = merged
+    return out
 
 
 def _signer(config: Config) -> Signer | None:

@@ -89,7 +89,7 @@ def test_counts_are_whole_numbers_and_blanks_stay_blank(built: types.SimpleNames
     rows = {r["district_id"]: r for r in _rows(built.out["results.csv"])}
     assert rows["D03"]["reporting_sites"] == ""  # blank in the table, blank here
     assert rows["D05"]["suppressed"] == "true" and rows["D05"]["ili_visits"] == ""
-    assert rows["D05"]["total_visits"] == "30"
+    assert rows["D05"]["total_visits"] == ""  # withheld too (docs/methods.md §6.2)
     for ident, row in rows.items():
         for column in COUNT_COLUMNS:
             cell = row[column]
@@ -98,7 +98,8 @@ def test_counts_are_whole_numbers_and_blanks_stay_blank(built: types.SimpleNames
     assert rows["D01"]["reporting_sites"] == "3" and rows["D02"]["reporting_sites"] == "4"
     records = {d["district_id"]: d for d in json.loads(built.out["results.json"])["districts"]}
     assert isinstance(records["D01"]["reporting_sites"], int)
-    assert isinstance(records["D01"]["total_visits"], int)
+    shown = next(d for d in records.values() if not d["suppressed"])  # D01 is D05's complement
+    assert isinstance(shown["total_visits"], int) and isinstance(shown["ili_visits"], int)
     assert records["D03"]["reporting_sites"] is None
 
 

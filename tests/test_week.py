@@ -80,6 +80,8 @@ def _week_counts(shift: int) -> dict[str, tuple[int, int]]:
 
 W04 = _week_counts(2)
 W04["D32"] = (3, 20)  # suppressed: 20 < min_visits = 30
+W04["D31"] = (6, 150)  # withheld as its complement: the fewest visits of the others
+WITHHELD = ["D31", "D32"]
 del W04["D33"]  # no row this week
 W03_PUBLISHED = _week_counts(0)
 W03_REVISED = dict(W03_PUBLISHED)
@@ -113,7 +115,9 @@ def test_one_row_per_boundary_district_in_boundary_order(result) -> None:  # typ
 
 def test_ili_percent_and_wilson_interval(result) -> None:  # type: ignore[no-untyped-def]
     t = result.table.set_index("district_id")
-    ok = [d for d in IDS if d not in ("D32", "D33")]
+    ok = [d for d in IDS if d not in ("D31", "D32", "D33")]
+    assert sorted(result.disclosure.this_week.ids) == WITHHELD
+    assert t.loc[WITHHELD, "ili_percent"].isna().all() and t.loc[WITHHELD, "ci_low"].isna().all()
     x = np.array([W04[d][0] for d in ok])
     n = np.array([W04[d][1] for d in ok])
     np.testing.assert_allclose(t.loc[ok, "ili_percent"], 100 * x / n, rtol=1e-12)  # [HAND]
@@ -133,16 +137,18 @@ def test_missing_district_has_no_data_everywhere(result) -> None:  # type: ignor
 
 
 def test_suppressed_district(result) -> None:  # type: ignore[no-untyped-def]
-    r = _row(result, "D32")
-    assert r["suppressed"] and r["total_visits"] == 20 and r["ili_visits"] == 3
-    assert np.isnan(r["ili_percent"]) and np.isnan(r["ci_low"]) and np.isnan(r["change_pp"])
-    assert r["tercile"] == 0
-    assert r["cluster_label"] == ClusterLabel.NO_DATA.value
-    kept = analyse_week(
-        CURRENT, PRIOR, DISTRICTS, GRAPH, dataclasses.replace(SETTINGS, keep_suppressed_values=True)
-    )
-    k = _row(kept, "D32")
+    for district in WITHHELD:
+        r = _row(result, district)
+        assert r["suppressed"] and pd.isna(r["total_visits"]) and pd.isna(r["ili_visits"])
+        assert np.isnan(r["ili_percent"]) and np.isnan(r["ci_low"]) and np.isnan(r["change_pp"])
+        assert np.isnan(r["eb_percent"]) and np.isnan(r["local_i"])
+        assert r["tercile"] == 0
+        assert r["cluster_label"] == ClusterLabel.NO_DATA.value
+    assert result.disclosure.this_week.rule_of("D32").value == "few-visits"
+    assert result.disclosure.this_week.rule_of("D31").value == "complementary"
+    k = result.unprotected_table.set_index("district_id").loc["D32"]
     assert k["ili_percent"] == pytest.approx(15.0)  # 100 * 3 / 20 [HAND]
+    assert k["total_visits"] == 20 and k["ili_visits"] == 3
     assert k["tercile"] == 0 and k["cluster_label"] == ClusterLabel.NO_DATA.value
 
 
@@ -195,7 +201,7 @@ def test_jurisdiction_pooled_figures(result) -> None:  # type: ignore[no-untyped
 
 def test_terciles_exclude_suppressed_and_missing(result) -> None:  # type: ignore[no-untyped-def]
     t = result.table.set_index("district_id")
-    ok = [d for d in IDS if d not in ("D32", "D33")]
+    ok = [d for d in IDS if d not in ("D31", "D32", "D33")]
     pct = t.loc[ok, "ili_percent"].to_numpy()
     # Hyndman & Fan (1996) type 7 = numpy's default linear quantile; right-closed classes.
     q1, q2 = np.quantile(pct, [1 / 3, 2 / 3])
@@ -220,7 +226,7 @@ def test_recent_terciles_use_this_weeks_cut_points(result) -> None:  # type: ign
 def test_clusters_are_computed_on_usable_districts(result) -> None:  # type: ignore[no-untyped-def]
     t = result.table.set_index("district_id")
     values = t["ili_percent"].to_numpy().copy()
-    values[[IDS.index("D32"), IDS.index("D33")]] = np.nan
+    values[[IDS.index("D31"), IDS.index("D32"), IDS.index("D33")]] = np.nan
     direct = local_clusters(
         values, GRAPH, permutations=199, seed=12345, correction="none", alpha=0.05
     )
@@ -230,8 +236,8 @@ def test_clusters_are_computed_on_usable_districts(result) -> None:  # type: ign
     # The high block sits in the top-left corner; any high-high core must be there [HAND].
     assert result.clusters.ids_with(ClusterLabel.HIGH_HIGH)  # seeded, esda 2.9.0 [LIB]
     assert set(result.clusters.ids_with(ClusterLabel.HIGH_HIGH)) <= {"D00", "D01", "D10", "D11"}
-    assert result.clusters.n_tested == 14
-    assert result.global_moran.available and result.global_moran.n == 14
+    assert result.clusters.n_tested == 13
+    assert result.global_moran.available and result.global_moran.n == 13
     assert result.global_moran.i > 0  # a clustered pattern [HAND: one high block]
 
 

@@ -4,7 +4,8 @@
 
 1. counts of this week and of last week per boundary district (a district
    missing from the table has no data);
-2. ILI% with its interval, suppression of small denominators;
+2. ILI% with its interval; which counts are withheld this week and last week
+   (disclosure control, :mod:`sitrep.analysis.disclosure`);
 3. week-over-week change against last week's *revised* counts;
 4. terciles (this week, and the last few weeks on this week's cut points);
 5. empirical Bayes rates; global and local Moran's I this week and last
@@ -17,6 +18,7 @@ The result, :class:`WeekAnalysis`, is what render receives.
 from __future__ import annotations
 
 import dataclasses
+from collections.abc import Mapping
 from typing import TYPE_CHECKING
 
 import numpy as np
@@ -24,6 +26,14 @@ import pandas as pd
 
 from sitrep.analysis.change import ChangeTable, week_over_week
 from sitrep.analysis.clusters import ClusterResult, GlobalMoranResult, global_moran, local_clusters
+from sitrep.analysis.disclosure import (
+    Cell,
+    DisclosureDecision,
+    DisclosureRules,
+    Earlier,
+    decide,
+    primary_rule,
+)
 from sitrep.analysis.proportions import (
     BoolArray,
     FloatArray,
@@ -55,6 +65,7 @@ TABLE_COLUMNS: tuple[str, ...] = (
     "ci_low",
     "ci_high",
     "suppressed",
+    "prior_suppressed",
     "prior_ili_percent",
     "prior_ili_percent_published",
     "prior_total_visits",
@@ -76,17 +87,28 @@ TABLE_COLUMNS: tuple[str, ...] = (
 )
 """Columns of :attr:`WeekAnalysis.table`, in order."""
 
-_SUPPRESSED_BLANKED = (
+_WITHHELD_NOW = (
+    "ili_visits",
+    "total_visits",
     "ili_percent",
     "ci_low",
     "ci_high",
+    "eb_percent",
+    "local_i",
+    "p_value",
+    "q_value",
+)
+"""Columns blanked for a district withheld this week."""
+_WITHHELD_BEFORE = ("prior_ili_percent", "prior_ili_percent_published", "prior_total_visits")
+"""Columns blanked for a district withheld last week."""
+_WITHHELD_EITHER = (
     "change_pp",
     "change_low_pp",
     "change_high_pp",
     "change_relative",
     "change_p",
-    "eb_percent",
 )
+"""Columns blanked when either week is withheld (a change gives one week from the other)."""
 
 
 @dataclasses.dataclass(frozen=True)
@@ -126,6 +148,30 @@ class JurisdictionSummary:
     change_from_zero: bool
     change_p: float
     change_class: ChangeClass
+    withheld: bool = False
+    """This week's total is withheld (no choice of districts protected the small counts);
+    its percentages and the change are NaN then and its counts must not be shown."""
+    prior_withheld: bool = False
+    """Last week's total is withheld likewise (last week's percentages and the change are NaN)."""
+
+
+def _withhold_totals(j: JurisdictionSummary, now: bool, before: bool) -> JurisdictionSummary:
+    """Blank the jurisdiction figures of a week whose total is withheld (docs/methods.md §6.2)."""
+    nan = float("nan")
+    changes: dict[str, object] = {}
+    if now:
+        changes.update(ili_percent=nan, ci_low=nan, ci_high=nan, withheld=True)
+    if before:
+        changes.update(
+            prior_ili_percent=nan, prior_ci_low=nan, prior_ci_high=nan,
+            prior_ili_percent_published=nan, prior_withheld=True,
+        )
+    if now or before:
+        changes.update(
+            change_pp=nan, change_low_pp=nan, change_high_pp=nan, change_relative=nan,
+            change_p=nan, change_from_zero=False, change_class=ChangeClass.NOT_ASSESSABLE,
+        )
+    return dataclasses.replace(j, **changes) if changes else j  # type: ignore[arg-type]
 
 
 @dataclasses.dataclass(frozen=True, eq=False)
@@ -141,9 +187,16 @@ class WeekAnalysis:
         :data:`TABLE_COLUMNS`. ``week`` is the label string, ``change_class``,
         ``cluster_label``, ``prior_cluster_label`` and ``transition`` are the
         enum values as strings (``prior_cluster_label`` is "" without a last
-        week). Suppressed districts keep their counts; their percentages are
-        NaN unless ``settings.keep_suppressed_values`` (render must still
-        hide them whenever ``suppressed`` is True).
+        week). ``suppressed`` / ``prior_suppressed`` say whether the district's
+        counts are withheld this week / last week (``disclosure``); every value
+        that would give a withheld count away is NaN (or "no data",
+        "not assessable") in this table, which is the only one render
+        publishes.
+    unprotected_table : pandas.DataFrame
+        The same table with the true values of withheld districts, for the
+        internal file of ``output.keep_suppressed_values`` only.
+    disclosure : DisclosureDecision
+        Which cells are withheld, by which rule (this week and last week).
     jurisdiction : JurisdictionSummary
     change : ChangeTable
         The district change arrays behind the ``change_*`` columns.
@@ -181,6 +234,8 @@ class WeekAnalysis:
     graph: DistrictGraph
     settings: AnalysisSettings
     notes: tuple[str, ...]
+    unprotected_table: pd.DataFrame
+    disclosure: DisclosureDecision
 
 
 @dataclasses.dataclass(frozen=True, eq=False)
@@ -196,6 +251,15 @@ class _Counts:
     def has_data(self) -> BoolArray:
         """True where the district has a row (visits present) that week."""
         return ~np.isnan(self.visits)
+
+    def cells(self, ids: tuple[str, ...]) -> list[Cell]:
+        """The districts with both counts, as disclosure cells."""
+        ok = self.has_data & ~np.isnan(self.ili)
+        return [
+            Cell(i, int(x), int(n))
+            for i, x, n, use in zip(ids, self.ili, self.visits, ok, strict=True)
+            if use
+        ]
 
 
 def _week_rows(frame: pd.DataFrame, week: EpiWeek) -> pd.DataFrame:
@@ -272,6 +336,7 @@ def analyse_week(
     *,
     week: EpiWeek | None = None,
     recent_weeks: int = 4,
+    earlier: Mapping[str, Earlier] | None = None,
 ) -> WeekAnalysis:
     """Compute every district and jurisdiction figure of one report week.
 
@@ -293,6 +358,10 @@ def analyse_week(
         The report week; default ``current.latest_week``.
     recent_weeks : int, default 4
         Number of weeks (ending with this one) in ``recent_terciles``.
+    earlier : mapping of week label to Earlier, optional
+        What earlier publications (earlier versions of this report, last
+        week's report) showed and withheld of this week and last week; a
+        district withheld there stays withheld (docs/methods.md §6.2).
 
     Returns
     -------
@@ -310,12 +379,14 @@ def analyse_week(
     *Last week* is ``week - 1`` in the table's week system. For each district
     its counts are taken from ``current`` when ``current`` has a row for it
     in that week (the revised value), otherwise from ``prior``; the value in
-    ``prior`` is also kept as "published". A district is *suppressed* when it
-    has fewer than ``settings.min_visits`` visits: it is left out of the
-    terciles and of the cluster statistics (label "no data"), and its
-    percentages are blanked in the table unless
-    ``settings.keep_suppressed_values``. The same rule, on last week's
-    revised visits, applies to last week's clusters. The cluster statistic
+    ``prior`` is also kept as "published". A district is *suppressed*
+    (withheld) in a week by the rules of :mod:`sitrep.analysis.disclosure`
+    (primary: fewer than ``settings.min_visits`` visits, an ILI count from 1
+    to ``settings.min_count`` - 1, a zero with ``settings.suppress_zero``;
+    then complementary cells and those withheld earlier). A withheld district
+    takes no part in any statistic of that week: terciles, empirical Bayes
+    rates and clusters are computed without it (label "no data"), and every
+    value derived from its counts is blanked in ``table``. The cluster statistic
     uses ``settings.cluster_variable`` (ILI% or the empirical Bayes rate in
     percent). Deterministic: the only randomness is esda's, seeded with
     ``settings.seed``.
@@ -375,19 +446,25 @@ def analyse_week(
     if not before.has_data.any():
         notes.append(f"no counts for {prior_week}: changes and last week's clusters are not shown")
 
-    # This week: ILI%, interval, suppression.
+    # This week: ILI%, interval; disclosure control of both weeks.
     x1, n1 = cur.ili, cur.visits
     pct = ili_percent(x1, n1)
     low, high = proportion_interval(
         x1, n1, confidence=settings.confidence, method=settings.interval
     )
-    suppressed = cur.has_data & (n1 < settings.min_visits)
-    if suppressed.any():
-        notes.append(
-            f"{int(suppressed.sum())} district(s) had fewer than {settings.min_visits} visits; "
-            "their percentages are not shown and they are left out of terciles and clusters: "
-            + ", ".join(sorted(i for i, s in zip(ids, suppressed, strict=True) if s))
-        )
+    earlier = earlier or {}
+    rules = _rules(settings)
+    disclosure = decide(
+        cur.cells(ids),
+        before.cells(ids),
+        rules,
+        labels=(week.label, prior_week.label),
+        earlier_this=earlier.get(week.label),
+        earlier_prior=earlier.get(prior_week.label),
+    )
+    suppressed = np.array([i in disclosure.this_week.ids for i in ids], dtype=bool)
+    suppressed0 = np.array([i in disclosure.prior_week.ids for i in ids], dtype=bool)
+    notes.extend(_disclosure_notes(disclosure, rules))
     usable = cur.has_data & ~suppressed & (n1 > 0)
 
     change = week_over_week(
@@ -403,7 +480,7 @@ def analyse_week(
     terciles = tercile_ranks(pct, valid=usable)
     if terciles.note:
         notes.append("terciles: " + terciles.note)
-    eb_pct = 100.0 * eb_rates(x1, n1)
+    eb_pct = 100.0 * eb_rates(np.where(usable, x1, np.nan), np.where(usable, n1, np.nan))
 
     # Clusters this week and last week, on the same graph and settings.
     values = _cluster_values(settings, pct, eb_pct, usable)
@@ -412,16 +489,22 @@ def analyse_week(
     prior_clusters: ClusterResult | None = None
     if before.has_data.any():
         x0, n0 = before.ili, before.visits
-        usable0 = before.has_data & (n0 >= settings.min_visits) & (n0 > 0)
-        values0 = _cluster_values(settings, ili_percent(x0, n0), 100.0 * eb_rates(x0, n0), usable0)
+        usable0 = before.has_data & ~suppressed0 & (n0 > 0)
+        eb0 = 100.0 * eb_rates(np.where(usable0, x0, np.nan), np.where(usable0, n0, np.nan))
+        values0 = _cluster_values(settings, ili_percent(x0, n0), eb0, usable0)
         prior_clusters = _local(values0, dg, settings)
     transitions = compare_weeks(clusters, prior_clusters, dg)
     notes.extend(f"clusters: {n}" for n in clusters.notes)
 
+    withheld_by_week = {week: suppressed, prior_week: suppressed0}
     recent = _recent_terciles(
-        current, prior, ids, week, recent_weeks, terciles, settings.min_visits, notes
+        current, prior, ids, week, recent_weeks, terciles, rules, withheld_by_week, notes
     )
-    jurisdiction = _jurisdiction(cur, before, published, settings)
+    jurisdiction = _withhold_totals(
+        _jurisdiction(cur, before, published, settings),
+        disclosure.this_week.total_withheld,
+        disclosure.prior_week.total_withheld,
+    )
 
     prior_pct = ili_percent(before.ili, before.visits)
     published_pct = ili_percent(published.ili, published.visits)
@@ -437,6 +520,7 @@ def analyse_week(
             "ci_low": 100.0 * low,
             "ci_high": 100.0 * high,
             "suppressed": suppressed,
+            "prior_suppressed": suppressed0,
             "prior_ili_percent": prior_pct,
             "prior_ili_percent_published": published_pct,
             "prior_total_visits": pd.array(before.visits, dtype="Int64"),
@@ -462,11 +546,8 @@ def analyse_week(
         },
         columns=list(TABLE_COLUMNS),
     )
-    if not settings.keep_suppressed_values and suppressed.any():
-        for column in _SUPPRESSED_BLANKED:
-            table.loc[suppressed, column] = np.nan
-        table.loc[suppressed, "change_from_zero"] = False
-        table.loc[suppressed, "change_class"] = ChangeClass.NOT_ASSESSABLE.value
+    unprotected = table.copy()
+    table = _protect(table, suppressed, suppressed0)
 
     return WeekAnalysis(
         week=week,
@@ -483,8 +564,58 @@ def analyse_week(
         graph=dg,
         settings=settings,
         notes=tuple(notes),
+        unprotected_table=unprotected,
+        disclosure=disclosure,
     )
 
+
+def _rules(settings: AnalysisSettings) -> DisclosureRules:
+    return DisclosureRules(
+        min_visits=settings.min_visits,
+        min_count=settings.min_count,
+        suppress_zero=settings.suppress_zero,
+    )
+
+
+def _protect(table: pd.DataFrame, now: BoolArray, before: BoolArray) -> pd.DataFrame:
+    """Blank every value that would give a withheld count away (docs/methods.md §6.2)."""
+    out = table.copy()
+    either = now | before
+    if now.any():
+        for column in _WITHHELD_NOW:
+            out[column] = out[column].mask(now)
+        out.loc[now, "tercile"] = NO_DATA
+    if before.any():
+        for column in _WITHHELD_BEFORE:
+            out[column] = out[column].mask(before)
+    if either.any():
+        for column in _WITHHELD_EITHER:
+            out[column] = out[column].mask(either)
+        out.loc[either, "change_from_zero"] = False
+        out.loc[either, "change_class"] = ChangeClass.NOT_ASSESSABLE.value
+    return out
+
+
+def _disclosure_notes(decision: DisclosureDecision, rules: DisclosureRules) -> list[str]:
+    """Plain notes: which districts are withheld in each week (never by which rule)."""
+    zero = ", a zero ILI count" if rules.suppress_zero else ""
+    rule_text = (
+        f"fewer than {rules.min_visits} visits, an ILI count from 1 to {rules.min_count - 1}"
+        f"{zero}, or so that those cannot be worked out from the totals"
+        if rules.min_count > 1
+        else f"fewer than {rules.min_visits} visits{zero}, or so that those cannot be worked "
+        "out from the totals"
+    )
+    out = []
+    for when, group in (("this week", decision.this_week), ("last week", decision.prior_week)):
+        if group.withheld:
+            out.append(
+                f"{len(group.withheld)} district(s) withheld {when} ({rule_text}); they are left "
+                "out of terciles, smoothing and clusters: " + ", ".join(sorted(group.ids))
+            )
+        if group.total_withheld:
+            out.append(f"the jurisdiction total of {when} is withheld as well: {group.reason}")
+    return out
 
 def _cluster_values(
     settings: AnalysisSettings, pct: FloatArray, eb_pct: FloatArray, usable: BoolArray
@@ -512,10 +643,15 @@ def _recent_terciles(
     week: EpiWeek,
     recent_weeks: int,
     terciles: TercileResult,
-    min_visits: int,
+    rules: DisclosureRules,
+    withheld: Mapping[EpiWeek, BoolArray],
     notes: list[str],
 ) -> tuple[tuple[EpiWeek, IntArray], ...]:
-    """Last weeks classed on this week's cut points (current table first, then prior)."""
+    """Last weeks classed on this week's cut points (current table first, then prior).
+
+    This week and last week leave out their withheld districts; earlier weeks
+    leave out the districts the primary rule would withhold.
+    """
     if terciles.cuts is None:
         notes.append("recent weeks are not classed: this week has no tercile cut points")
         return ()
@@ -529,7 +665,18 @@ def _recent_terciles(
         if not counts.has_data.any():
             skipped.append(str(w))
             continue
-        valid = counts.has_data & (counts.visits >= min_visits) & (counts.visits > 0)
+        if w in withheld:
+            hidden = withheld[w]
+        else:
+            hidden = np.array(
+                [
+                    not (np.isnan(x) or np.isnan(n))
+                    and primary_rule(int(x), int(n), rules) is not None
+                    for x, n in zip(counts.ili, counts.visits, strict=True)
+                ],
+                dtype=bool,
+            )
+        valid = counts.has_data & ~hidden & (counts.visits > 0)
         ranks = fixed_ranks(ili_percent(counts.ili, counts.visits), terciles.cuts, valid)
         ranks.setflags(write=False)
         out.append((w, ranks))

@@ -279,6 +279,31 @@ def next_version(archive_root: Path, jurisdiction: str, week_label: str) -> int:
     return found[-1] + 1 if found else 1
 
 
+def archived_results(archive_root: Path, jurisdiction: str, week_label: str) -> tuple[tuple[Path, bytes], ...]:
+    """``results.json`` of every archived version of a week, oldest first (path, bytes).
+
+    Disclosure control reads them so that a reissue keeps withheld what an
+    earlier version withheld (docs/methods.md §6.2). A version without the
+    file is skipped.
+
+    Raises
+    ------
+    DeliveryError
+        If a version's results.json exists but cannot be read.
+    """
+    week_dir = bundle_dir(archive_root, jurisdiction, week_label, 1).parent
+    out = []
+    for version in _versions(week_dir):
+        path = week_dir / f"v{version}" / "results.json"
+        try:
+            out.append((path, path.read_bytes()))
+        except FileNotFoundError:
+            continue
+        except OSError as exc:
+            raise DeliveryError(f"cannot read {path}: {exc}") from exc
+    return tuple(out)
+
+
 def check_name(name: str) -> str:
     """Check one output file name and return it unchanged.
 

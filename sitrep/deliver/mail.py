@@ -44,9 +44,11 @@ from sitrep.deliver.archive import MANIFEST_JSON, jurisdiction_slug, verify_bund
 from sitrep.errors import DeliveryError
 
 __all__ = [
+    "INTERNAL_PREFIX",
     "SendOutcome",
     "build_message",
     "eml_path",
+    "refuse_internal",
     "send_bundle",
     "send_message",
     "sent_record_path",
@@ -124,6 +126,31 @@ def _address(field: str, value: str) -> str:
     return value
 
 
+INTERNAL_PREFIX = "internal-"
+"""Bundle files for internal use only start with this; they are never attached."""
+
+
+def refuse_internal(name: str) -> str:
+    """Return ``name``, or refuse a file for internal use only as an attachment.
+
+    A file whose name (any path component) starts with :data:`INTERNAL_PREFIX`
+    or contains ``UNSUPPRESSED`` (any case) holds internal detail such as the
+    true values of withheld districts (docs/methods.md §6.2).
+
+    Raises
+    ------
+    DeliveryError
+        For such a name.
+    """
+    parts = str(name).replace("\\", "/").split("/")
+    if any(p.lower().startswith(INTERNAL_PREFIX) for p in parts) or "UNSUPPRESSED" in str(name).upper():
+        raise DeliveryError(
+            f"refusing to attach {name!r}: files starting with {INTERNAL_PREFIX!r} or naming "
+            "UNSUPPRESSED are for internal use only and are never e-mailed"
+        )
+    return name
+
+
 def build_message(
     *,
     subject: str,
@@ -176,7 +203,8 @@ def build_message(
     ------
     DeliveryError
         If a header value contains CR, LF or NUL, an address is malformed,
-        there is no recipient, ``date`` is naive, or the seed is empty.
+        there is no recipient, ``date`` is naive, the seed is empty, or an
+        attachment is an internal file (:func:`refuse_internal`).
     """
     _no_newlines("subject", subject)
     _address("sender", sender)
@@ -208,6 +236,7 @@ def build_message(
         msg.set_content(body)
         for name, data, mime in attachments:
             _no_newlines("attachment name", name)
+            refuse_internal(name)
             maintype, _, subtype = mime.partition("/")
             if not maintype or not subtype:
                 raise DeliveryError(

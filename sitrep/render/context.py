@@ -25,6 +25,7 @@ from sitrep.render.wording import plain as pl
 from sitrep.render.wording import sentences as nv
 from sitrep.render.wording import tiles as tl
 from sitrep.render.wording.mail import ATTACHED
+from sitrep.render.wording.sentences import PRIOR_WITHHELD_NOTE, WITHHELD_NOTE, WITHHELD_TOTAL
 
 __all__ = [
     "DistrictRow",
@@ -141,6 +142,8 @@ class ReportContext:
     """All districts, as the HTML report shows them (ids in natural order)."""
     district_table_pdf: DistrictTable = DistrictTable((), (), ())
     """The PDF's districts (highest ILI% first)."""
+    disclosure_note: str = ""
+    """How many districts are withheld to protect small counts (empty when none)."""
 
     @property
     def trend_figures(self) -> tuple[FigureItem, ...]:
@@ -369,6 +372,8 @@ def build_context(
         confidence=conf,
         interval=a.interval,
         min_visits=a.min_visits,
+        min_count=a.min_count,
+        suppress_zero=a.suppress_zero,
         change_test=a.change_test,
         change_alpha=a.change_alpha,
         min_change_pp=a.min_change_pp,
@@ -421,14 +426,21 @@ def build_context(
             n_total=j.n_districts_total,
         ),
         completeness=mt.completeness_sentence(
-            visits_now=int(j.total_visits), visits_usual=usual, weeks=len(previous)
+            visits_now=None if j.withheld else int(j.total_visits), visits_usual=usual, weeks=len(previous)
         ),
+    )
+    decision = analysis.disclosure
+    disclosure_note = nv.withheld_sentence(
+        n_now=len(decision.this_week.withheld),
+        n_before=len(decision.prior_week.withheld),
+        total_now_reason=decision.this_week.reason if decision.this_week.total_withheld else "",
+        total_before_reason=decision.prior_week.reason if decision.prior_week.total_withheld else "",
     )
     plain = (
         ("This week", draft_messages[0]),
         ("Compared with the season", draft_messages[1]),
         ("Where levels are highest", draft_messages[2] + " " + draft_messages[3]),
-        ("About the figures", draft_messages[4]),
+        ("About the figures", draft_messages[4] + (" " + disclosure_note if disclosure_note else "")),
     )
     report_version = str(version) if version is not None else config.report.version
     n_high = sum(1 for lab in table["cluster_label"] if lab == "high-high")
@@ -516,6 +528,7 @@ def build_context(
         district_table_pdf=district_table(
             top, confidence_label=conf_label, order="given", min_visits=a.min_visits
         ),
+        disclosure_note=disclosure_note,
     )
 
 
@@ -553,7 +566,7 @@ def _indicators(
     prior_label = f"week {analysis.prior_week.week}" if analysis.prior_week else "last week"
     revised_note = nv.revision_note(published=j.prior_ili_percent_published, revised=j.prior_ili_percent)
     rows = [
-        IndicatorRow("ILI% this week", fm.fmt_pct(j.ili_percent), f"{conf} CI {fm.fmt_interval(j.ci_low, j.ci_high)}; {fm.fmt_count(j.ili_visits)} of {fm.fmt_count(j.total_visits)} visits"),
+        IndicatorRow("ILI% this week", fm.fmt_pct(j.ili_percent), WITHHELD_TOTAL if j.withheld else f"{conf} CI {fm.fmt_interval(j.ci_low, j.ci_high)}; {fm.fmt_count(j.ili_visits)} of {fm.fmt_count(j.total_visits)} visits"),
         IndicatorRow(f"ILI% {prior_label} (revised)", fm.fmt_pct(j.prior_ili_percent), revised_note),
         IndicatorRow("Change", fm.fmt_pp(j.change_pp), f"{conf} CI {fm.fmt_interval(j.change_low_pp, j.change_high_pp, ' pp')}; {verdict}"),
         IndicatorRow("Districts reporting", f"{j.n_districts_reporting} of {j.n_districts_total}", nv.reporting_note(j.reporting_sites if math.isfinite(_f(j.reporting_sites)) else None)),
@@ -603,16 +616,20 @@ def _district_rows(
         total = _f(rec["total_visits"])
         notes = []
         if suppressed:
-            notes.append("fewer visits than the display minimum" if math.isfinite(total) else "not reported")
-        if not math.isfinite(total):
+            notes.append(WITHHELD_NOTE)
+        elif not math.isfinite(total):
             notes = ["not reported this week"]
+        elif bool(rec.get("prior_suppressed")):
+            notes.append(PRIOR_WITHHELD_NOTE)
         pct = _f(rec["ili_percent"])
         show = not suppressed and math.isfinite(pct)
         change_pp = _f(rec["change_pp"])
         if rec.get("change_from_zero") and show:
             change_text = f"from 0 to {fm.fmt_pct(pct, digits)}"
+        elif show and math.isfinite(change_pp):
+            change_text = fm.fmt_pp(change_pp).replace(" percentage points", " pp")
         else:
-            change_text = fm.fmt_pp(change_pp).replace(" percentage points", " pp") if show else "—"
+            change_text = "—"
         verdict = nv.change_verdict(
             change_class=str(rec["change_class"]),
             p_value=_f(rec["change_p"]),
@@ -627,16 +644,16 @@ def _district_rows(
                 district_id=str(rec["district_id"]),
                 name=str(rec["district_name"]),
                 sites=fm.fmt_count(rec["reporting_sites"]) if math.isfinite(_f(rec["reporting_sites"])) else "—",
-                ili_visits=fm.fmt_count(rec["ili_visits"]) if show else ("suppressed" if suppressed and math.isfinite(total) else "—"),
-                total_visits=fm.fmt_count(rec["total_visits"]) if math.isfinite(total) else "—",
-                ili_pct=fm.fmt_pct(pct, digits) if show else ("suppressed" if suppressed and math.isfinite(total) else "no data"),
+                ili_visits=fm.fmt_count(rec["ili_visits"]) if show else ("withheld" if suppressed else "—"),
+                total_visits="withheld" if suppressed else (fm.fmt_count(total) if math.isfinite(total) else "—"),
+                ili_pct=fm.fmt_pct(pct, digits) if show else ("withheld" if suppressed else "no data"),
                 ci=fm.fmt_interval(_f(rec["ci_low"]), _f(rec["ci_high"])) if show else "—",
                 change=change_text,
-                change_class=verdict if show else "not assessable",
+                change_class=verdict if show and math.isfinite(change_pp) else "not assessable",
                 tercile=_TERCILE[int(rec["tercile"])],
                 cluster=str(rec["cluster_label"]),
                 transition=str(rec["transition"] or ""),
-                flags=flags,
+                flags="" if suppressed else flags,
                 notes="; ".join(notes),
                 sort_pct=pct if show else math.nan,
                 suppressed=suppressed or not math.isfinite(pct),

@@ -63,7 +63,11 @@ class Field:
 
 
 _BLANK_SUPPRESSED = (
-    " Blank for a suppressed district unless analysis.keep_suppressed_values is true."
+    " Blank for a district withheld this week (suppressed), docs/methods.md §6.2."
+)
+_BLANK_PRIOR = " Blank for a district withheld last week (prior_suppressed), docs/methods.md §6.2."
+_BLANK_EITHER = (
+    " Blank for a district withheld this week or last week, docs/methods.md §6.2."
 )
 
 FIELDS: tuple[Field, ...] = (
@@ -86,7 +90,7 @@ FIELDS: tuple[Field, ...] = (
     Field("ili_visits", DISTRICTS, "Visits meeting the influenza-like-illness case definition this week.",
           "count", "From the table (revised counts as in this week's file)." + _BLANK_SUPPRESSED),
     Field("total_visits", DISTRICTS, "All visits at the reporting sites this week.", "count",
-          "From the table; the denominator of ili_percent."),
+          "From the table; the denominator of ili_percent." + _BLANK_SUPPRESSED),
     Field("ili_percent", DISTRICTS, "Share of visits that were for influenza-like illness.", "percent",
           "100 × ili_visits / total_visits, docs/methods.md §2." + _BLANK_SUPPRESSED),
     Field("ci_low", DISTRICTS, "Lower end of the confidence interval of ili_percent.", "percent",
@@ -94,37 +98,41 @@ FIELDS: tuple[Field, ...] = (
           "docs/methods.md §2." + _BLANK_SUPPRESSED),
     Field("ci_high", DISTRICTS, "Upper end of the confidence interval of ili_percent.", "percent",
           "As ci_low, docs/methods.md §2." + _BLANK_SUPPRESSED),
-    Field("suppressed", DISTRICTS, "Whether the district had too few visits to show its percentages.",
-          "true/false", "true when total_visits is below analysis.min_visits, docs/methods.md §6.2."),
+    Field("suppressed", DISTRICTS, "Whether the district's counts are withheld this week to protect "
+          "small counts.", "true/false", "Primary suppression (fewer than analysis.min_visits visits, "
+          "an ILI count from 1 to analysis.min_count - 1, a zero with analysis.suppress_zero) or "
+          "complementary suppression, or withheld by an earlier publication, docs/methods.md §6.2."),
+    Field("prior_suppressed", DISTRICTS, "Whether the district's counts are withheld for last week.",
+          "true/false", "The same rules on last week's revised counts, docs/methods.md §6.2."),
     Field("prior_ili_percent", DISTRICTS, "Last week's ILI percentage, as revised in this week's table.",
           "percent", "From this week's table where it has last week's row, else from last week's "
-          "table, docs/methods.md §3."),
+          "table, docs/methods.md §3." + _BLANK_PRIOR),
     Field("prior_ili_percent_published", DISTRICTS,
           "Last week's ILI percentage as published in last week's table.", "percent",
           "From input.prior_table; blank without it. Differs from prior_ili_percent when counts "
-          "were revised, docs/methods.md §9.4."),
+          "were revised, docs/methods.md §9.4." + _BLANK_PRIOR),
     Field("change_pp", DISTRICTS, "Change of ili_percent since last week.", "percentage points",
-          "ili_percent minus prior_ili_percent, docs/methods.md §3." + _BLANK_SUPPRESSED),
+          "ili_percent minus prior_ili_percent, docs/methods.md §3." + _BLANK_EITHER),
     Field("change_low_pp", DISTRICTS, "Lower end of the confidence interval of change_pp.",
-          "percentage points", "Newcombe hybrid score interval, docs/methods.md §3." + _BLANK_SUPPRESSED),
+          "percentage points", "Newcombe hybrid score interval, docs/methods.md §3." + _BLANK_EITHER),
     Field("change_high_pp", DISTRICTS, "Upper end of the confidence interval of change_pp.",
-          "percentage points", "Newcombe hybrid score interval, docs/methods.md §3." + _BLANK_SUPPRESSED),
+          "percentage points", "Newcombe hybrid score interval, docs/methods.md §3." + _BLANK_EITHER),
     Field("change_relative", DISTRICTS, "Relative change since last week (0.5 means 50% higher).",
           "ratio", "ili_percent / prior_ili_percent − 1; blank when last week was 0%, "
-                   "docs/methods.md §3." + _BLANK_SUPPRESSED),
+                   "docs/methods.md §3." + _BLANK_EITHER),
     Field("change_from_zero", DISTRICTS, "Whether last week was 0% and this week is above it.",
           "true/false", "When true the relative change is undefined and the report says "
                         "\"from 0 to X%\", docs/methods.md §3."),
     Field("change_p", DISTRICTS, "Two-sided p-value of the week-over-week change.", "probability",
           "Pooled two-proportion z test (default) or Poisson score test, analysis.change_test, "
-          "docs/methods.md §3." + _BLANK_SUPPRESSED),
+          "docs/methods.md §3." + _BLANK_EITHER),
     Field("change_class", DISTRICTS, "The change in words used by the map.",
           "category: increase, decrease, similar, not assessable",
           "increase or decrease when the change is detectable and at least analysis.min_change_pp, "
           "docs/methods.md §3."),
     Field("tercile", DISTRICTS, "The district's third of this week's ILI percentages.",
           "category: 1 low, 2 middle, 3 high, 0 no data",
-          "Type 7 quantiles of the non-suppressed values, docs/methods.md §4."),
+          "Type 7 quantiles of the values not withheld, docs/methods.md §4; 0 for a withheld district."),
     Field("eb_percent", DISTRICTS, "ILI percentage smoothed towards the jurisdiction's rate.", "percent",
           "Global empirical Bayes (Marshall 1991), docs/methods.md §6.1." + _BLANK_SUPPRESSED),
     Field("local_i", DISTRICTS, "Local Moran's I of the district.", "statistic (no unit)",
@@ -179,12 +187,19 @@ FIELDS: tuple[Field, ...] = (
     Field("change_class", SUMMARY, "The jurisdiction's change in words.",
           "category: as the district column", "docs/methods.md §3."),
     Field("ili_visits", SUMMARY, "ILI visits in every district this week.", "count",
-          "Sum of the district counts (suppressed districts included)."),
+          "Sum of the district counts (withheld districts included); null when the total itself "
+          "is withheld."),
     Field("total_visits", SUMMARY, "All visits in every district this week.", "count",
-          "Sum of the district counts (suppressed districts included)."),
+          "Sum of the district counts (withheld districts included); null when the total itself "
+          "is withheld."),
     Field("districts_reporting", SUMMARY, "Districts with at least one visit this week.", "count",
           "From the table."),
     Field("districts", SUMMARY, "Districts in the boundary file.", "count", "From the boundaries."),
+    Field("withheld", SUMMARY, "Whether this week's jurisdiction total is withheld.", "true/false",
+          "true only when no choice of districts protects the small counts; the counts, "
+          "percentages and change are then null, docs/methods.md §6.2."),
+    Field("prior_withheld", SUMMARY, "Whether last week's jurisdiction total is withheld.",
+          "true/false", "As withheld, for last week, docs/methods.md §6.2."),
 )
 """Every column of results.csv and key of results.json, in file order within each part."""
 

@@ -103,6 +103,8 @@ def draw_report_figures(
 
         cuts = analysis.terciles.cuts
         panels = [(f"Week {w.week}", np.asarray(ranks)) for w, ranks in analysis.recent_terciles]
+        if not panels:  # no cut points this week (e.g. every district withheld): one empty panel
+            panels = [(f"Week {week.week}", np.asarray(analysis.terciles.ranks))]
         fig = maps.tercile_small_multiples(
             geoms, panels, cuts, suppressed_label=words.LEGEND_LABELS["terciles"]["0"], decimals=digits
         )

@@ -7,28 +7,40 @@ validation.json are plain UTF-8. Counts are whole numbers (``12``, not
 column and key is described in :mod:`sitrep.render.dictionary`. Text cells that a spreadsheet would evaluate as a formula (starting with
 ``=``, ``+``, ``-``, ``@``, TAB, CR or LF) are prefixed with an apostrophe
 (OWASP ASVS 1.2.10 guidance on CSV injection); numbers are written as numbers.
-Suppressed districts' values are blanked unless the configuration keeps them.
+Withheld districts' values are blanked (docs/methods.md §6.2); with
+``output.keep_suppressed_values`` their true values go only to
+:data:`INTERNAL_RESULTS` (:func:`internal_results_csv`), which is never attached
+or e-mailed.
 """
 
 from __future__ import annotations
 
+import dataclasses
 import io
 import json
 import math
+import re
+from collections.abc import Iterable
 from typing import Any
 
 import pandas as pd
 
+from sitrep.analysis.disclosure import Earlier
 from sitrep.analysis.week import WeekAnalysis
 from sitrep.config import AnalysisSettings
-from sitrep.model import ValidationReport
+from sitrep.model import Finding, ValidationReport
 from sitrep.render.dictionary import BOM
+from sitrep.render.wording.sentences import redacted_finding
 
 __all__ = [
     "COUNT_COLUMNS",
+    "INTERNAL_RESULTS",
     "RESULT_COLUMNS",
     "csv_field",
+    "earlier_publication",
+    "internal_results_csv",
     "neutralise_formula",
+    "redact_findings",
     "results_csv",
     "results_json",
     "validation_json",
@@ -37,15 +49,22 @@ __all__ = [
 RESULT_COLUMNS = (
     "jurisdiction", "week", "week_start", "week_end",
     "district_id", "district_name", "reporting_sites", "ili_visits", "total_visits",
-    "ili_percent", "ci_low", "ci_high", "suppressed", "prior_ili_percent",
+    "ili_percent", "ci_low", "ci_high", "suppressed", "prior_suppressed", "prior_ili_percent",
     "prior_ili_percent_published", "change_pp", "change_low_pp", "change_high_pp",
     "change_relative", "change_from_zero", "change_p", "change_class", "tercile", "eb_percent",
     "local_i", "p_value", "q_value", "cluster_label", "prior_cluster_label", "transition",
 )
 COUNT_COLUMNS = ("reporting_sites", "ili_visits", "total_visits")
 """Columns holding counts: written as whole numbers."""
-_SUPPRESSIBLE = ("ili_visits", "ili_percent", "ci_low", "ci_high", "change_pp", "change_low_pp",
-                 "change_high_pp", "change_relative", "change_p", "eb_percent")
+_SUPPRESSIBLE = ("ili_visits", "total_visits", "ili_percent", "ci_low", "ci_high", "change_pp",
+                 "change_low_pp", "change_high_pp", "change_relative", "change_p", "eb_percent",
+                 "local_i", "p_value", "q_value")
+_PRIOR_SUPPRESSIBLE = ("prior_ili_percent", "prior_ili_percent_published", "change_pp",
+                       "change_low_pp", "change_high_pp", "change_relative", "change_p")
+INTERNAL_RESULTS = "internal-results-UNSUPPRESSED.csv"
+"""Bundle file with the true values of withheld districts (``output.keep_suppressed_values``)."""
+INTERNAL_COLUMNS = (*RESULT_COLUMNS, "withheld_rule", "prior_withheld_rule")
+"""Columns of :data:`INTERNAL_RESULTS`: those of results.csv and the rule that withheld each week."""
 _TRIGGERS = ("=", "+", "-", "@", "\t", "\r", "\n")
 
 
@@ -59,17 +78,25 @@ def neutralise_formula(text: str) -> str:
 
 
 def _records(
-    analysis: WeekAnalysis, settings: AnalysisSettings, jurisdiction: str
+    analysis: WeekAnalysis, settings: AnalysisSettings, jurisdiction: str, *, internal: bool = False
 ) -> list[dict[str, Any]]:
+    """Rows of the published table (withheld values blank), or with ``internal`` the true ones."""
     out = []
     fixed = {
         "jurisdiction": jurisdiction,
         "week_start": analysis.week.start.isoformat(),
         "week_end": analysis.week.end.isoformat(),
     }
-    for rec in analysis.table.to_dict("records"):
+    table = analysis.unprotected_table if internal else analysis.table
+    columns = INTERNAL_COLUMNS if internal else RESULT_COLUMNS
+    now, before = analysis.disclosure.this_week, analysis.disclosure.prior_week
+    for rec in table.to_dict("records"):
+        if internal:
+            r_now, r_before = now.rule_of(rec["district_id"]), before.rule_of(rec["district_id"])
+            rec["withheld_rule"] = r_now.value if r_now is not None else ""
+            rec["prior_withheld_rule"] = r_before.value if r_before is not None else ""
         row = {}
-        for col in RESULT_COLUMNS:
+        for col in columns:
             value = fixed[col] if col in fixed else rec.get(col)
             if hasattr(value, "item"):
                 value = value.item()
@@ -80,9 +107,13 @@ def _records(
             if col in COUNT_COLUMNS and isinstance(value, float) and value.is_integer():
                 value = int(value)
             row[col] = value
-        if row["suppressed"] and not settings.keep_suppressed_values:
-            for col in _SUPPRESSIBLE:
-                row[col] = None
+        if not internal:
+            if row["suppressed"]:
+                for col in _SUPPRESSIBLE:
+                    row[col] = None
+            if row["prior_suppressed"]:
+                for col in _PRIOR_SUPPRESSIBLE:
+                    row[col] = None
         out.append(row)
     return out
 
@@ -112,12 +143,28 @@ def results_csv(analysis: WeekAnalysis, settings: AnalysisSettings, *, jurisdict
     :func:`neutralise_formula` first; counts (:data:`COUNT_COLUMNS`) are whole
     numbers, other numbers are written with ``repr`` after rounding to 10
     decimals, booleans as ``true``/``false``, missing values as empty fields.
+    Withheld values are empty.
     """
+    return _csv(analysis, settings, jurisdiction, internal=False)
+
+
+def internal_results_csv(
+    analysis: WeekAnalysis, settings: AnalysisSettings, *, jurisdiction: str
+) -> bytes:
+    """:func:`results_csv` with the true values of withheld districts and the rule that withheld
+    each (for :data:`INTERNAL_RESULTS`; internal use only)."""
+    return _csv(analysis, settings, jurisdiction, internal=True)
+
+
+def _csv(
+    analysis: WeekAnalysis, settings: AnalysisSettings, jurisdiction: str, *, internal: bool
+) -> bytes:
+    columns = INTERNAL_COLUMNS if internal else RESULT_COLUMNS
     buffer = io.StringIO()
-    buffer.write(",".join(csv_field(c) for c in RESULT_COLUMNS) + "\n")
-    for row in _records(analysis, settings, jurisdiction):
+    buffer.write(",".join(csv_field(c) for c in columns) + "\n")
+    for row in _records(analysis, settings, jurisdiction, internal=internal):
         cells = []
-        for col in RESULT_COLUMNS:
+        for col in columns:
             value = row[col]
             if value is None:
                 cells.append("")
@@ -154,6 +201,9 @@ def results_json(analysis: WeekAnalysis, settings: AnalysisSettings, *, jurisdic
         "ili_visits": clean(j.ili_visits), "total_visits": clean(j.total_visits),
         "districts_reporting": clean(j.n_districts_reporting), "districts": clean(j.n_districts_total),
     }
+    summary.update(withheld=j.withheld, prior_withheld=j.prior_withheld)
+    if j.withheld:
+        summary.update(ili_visits=None, total_visits=None)
     doc = {
         "week": str(analysis.week),
         "week_start": analysis.week.start.isoformat(),
@@ -176,3 +226,54 @@ def validation_json(report: ValidationReport) -> bytes:
         "findings": [f.as_dict() for f in report.findings],
     }
     return (json.dumps(doc, indent=2, sort_keys=True, ensure_ascii=False) + "\n").encode("utf-8")
+
+
+def earlier_publication(doc: Any, week_label: str) -> Earlier:
+    """What one archived ``results.json`` published of week ``week_label``.
+
+    The districts it withheld that week (as its report week, ``suppressed``,
+    or as its last week, ``prior_suppressed``) and the counts it showed for
+    the report week. Raises ValueError when ``doc`` is not a results document.
+    """
+    if not isinstance(doc, dict) or not isinstance(doc.get("districts"), list):
+        raise ValueError("not a results.json document (no 'districts' list)")
+    withheld: set[str] = set()
+    shown: list[tuple[str, int, int]] = []
+    as_report_week = str(doc.get("week")) == week_label
+    as_prior_week = str(doc.get("prior_week")) == week_label
+    for row in doc["districts"]:
+        if not isinstance(row, dict):
+            raise ValueError("a 'districts' entry is not an object")
+        ident = str(row.get("district_id"))
+        if as_report_week:
+            if row.get("suppressed"):
+                withheld.add(ident)
+            else:
+                x, n = row.get("ili_visits"), row.get("total_visits")
+                if isinstance(x, (int, float)) and isinstance(n, (int, float)):
+                    shown.append((ident, int(x), int(n)))
+        if as_prior_week and row.get("prior_suppressed"):
+            withheld.add(ident)
+    return Earlier(frozenset(withheld), tuple(sorted(shown)))
+
+
+def redact_findings(report: ValidationReport, withheld: Iterable[str]) -> ValidationReport:
+    """The findings with the message and value of every finding about a withheld district replaced.
+
+    A finding is about a district when its ``district_id`` is one of ``withheld``
+    or its message names it ("district 042"); the replacement keeps the rule,
+    file, line and column and says that the values are withheld. Used for every
+    published copy of the findings (report, validation.json); the run's own
+    check output is unchanged.
+    """
+    ids = sorted(set(withheld))
+    if not ids:
+        return report
+    named = re.compile(r"\bdistrict (?:" + "|".join(re.escape(i) for i in ids) + r")\b")
+
+    def redact(f: Finding) -> Finding:
+        if f.district_id in ids or named.search(f.message):
+            return dataclasses.replace(f, message=redacted_finding(f.rule), value=None)
+        return f
+
+    return ValidationReport(tuple(redact(f) for f in report.findings))

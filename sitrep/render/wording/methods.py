@@ -59,6 +59,30 @@ class MethodSettings:
     week_system: str
     season_label: str
     season_start_week: int
+    min_count: int = 5
+    suppress_zero: bool = False
+
+
+def disclosure_method_text(*, min_visits: int, min_count: int, suppress_zero: bool) -> str:
+    """The methods entry on withheld counts (docs/methods.md §6.2).
+
+    >>> disclosure_method_text(min_visits=50, min_count=5, suppress_zero=False)[:94]
+    "A district's counts are withheld in a week when it had fewer than 50 visits or 1 to 4 ILI visits"
+    """
+    small = f" or 1 to {min_count - 1} ILI visits" if min_count > 1 else ""
+    zero = "; a zero count is withheld too" if suppress_zero else "; a zero count is shown"
+    return (
+        f"A district's counts are withheld in a week when it had fewer than {min_visits} visits{small}"
+        f"{zero}. So that a withheld count cannot be worked out by subtracting the districts shown "
+        "from the jurisdiction total, further districts (those with the fewest visits first) are "
+        f"withheld until at least two are withheld and together they hold at least {min_visits} visits "
+        f"and {max(min_count, 1)} ILI visits; the same is done for last week, and a district withheld "
+        "in an earlier version of this report or in last week's report stays withheld. A withheld "
+        "district's count, visits, percentage, interval, change, tercile, smoothed rate, cluster "
+        "statistics and flags are not shown, and it takes no part in the terciles, the smoothing or "
+        "the cluster statistics. When no choice of districts can protect the small counts, the "
+        "jurisdiction total is withheld as well and the report says so."
+    )
 
 
 def methods_sections(m: MethodSettings) -> tuple[tuple[str, str], ...]:
@@ -82,8 +106,10 @@ def methods_sections(m: MethodSettings) -> tuple[tuple[str, str], ...]:
         ("ILI percentage", (
             f"ILI visits divided by all outpatient visits, per district and pooled over districts for "
             f"{m.jurisdiction} (a pooled ratio, not a population-weighted mean). "
-            f"{_INTERVALS.get(m.interval, m.interval)} {conf} confidence intervals from unrounded counts. "
-            f"Districts with fewer than {m.min_visits} visits are suppressed in displays."
+            f"{_INTERVALS.get(m.interval, m.interval)} {conf} confidence intervals from unrounded counts."
+        )),
+        ("Small counts", disclosure_method_text(
+            min_visits=m.min_visits, min_count=m.min_count, suppress_zero=m.suppress_zero
         )),
         ("Week-over-week change", (
             f"This week against last week's revised value, in percentage points, with a Newcombe hybrid "
@@ -94,7 +120,7 @@ def methods_sections(m: MethodSettings) -> tuple[tuple[str, str], ...]:
         )),
         ("Terciles", (
             "Cut points are the one-third and two-thirds quantiles (linear interpolation) of this week's "
-            "non-suppressed district values; a value equal to a cut point belongs to the lower class, "
+            "district values not withheld; a value equal to a cut point belongs to the lower class, "
             "and values and cut points are printed with enough decimals to show which side they are on. "
             "The same cut points class the earlier weeks in the small multiples."
         )),
@@ -108,7 +134,7 @@ def methods_sections(m: MethodSettings) -> tuple[tuple[str, str], ...]:
             f"with the same statistic after {m.permutations:,} random reshufflings of the other districts' "
             f"values (conditional permutation, seed {m.seed}); the pseudo p-value counts the reshufflings at "
             f"least as extreme as the observed value, on the side it falls. Multiple testing: {multiple}. "
-            "Districts without data or with too few visits are left out; districts with no neighbour are "
+            "Districts without data or withheld to protect small counts are left out; districts with no neighbour are "
             "never tested."
         )),
         ("Global Moran's I", m.global_text),
@@ -208,8 +234,11 @@ def coverage_sentence(*, n_sites: float | None, n_reporting: int, n_total: int) 
     )
 
 
-def completeness_sentence(*, visits_now: int, visits_usual: float | None, weeks: int) -> str:
-    """Completeness of this week's reporting against the usual volume of visits."""
+def completeness_sentence(*, visits_now: int | None, visits_usual: float | None, weeks: int) -> str:
+    """Completeness of this week's reporting against the usual volume of visits
+    (``visits_now`` None: this week's total is withheld)."""
+    if visits_now is None:
+        return "Completeness is not shown: this week's total is withheld to protect small counts."
     if visits_usual is None or visits_usual <= 0:
         return "Completeness against the usual volume could not be judged: too few recent weeks."
     share = visits_now / visits_usual

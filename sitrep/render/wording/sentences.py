@@ -52,6 +52,11 @@ __all__ = [
     "threshold_sentence",
     "tercile_sentence",
     "vanished_sentence",
+    "withheld_sentence",
+    "redacted_finding",
+    "PRIOR_WITHHELD_NOTE",
+    "WITHHELD_NOTE",
+    "WITHHELD_TOTAL",
 ]
 
 VERDICTS = (
@@ -451,3 +456,54 @@ def global_moran_text(*, available: bool, i: float, expectation: float, p_sim: f
 
 
 __all__ += ["NOT_AVAILABLE", "global_moran_text", "reporting_note"]
+
+
+WITHHELD_NOTE = "withheld to protect small counts"
+"""District table note of a district whose counts are withheld this week."""
+WITHHELD_TOTAL = "the jurisdiction's counts are withheld this week to protect small counts"
+"""Indicator note when this week's jurisdiction total itself is withheld."""
+PRIOR_WITHHELD_NOTE = "last week withheld to protect small counts"
+"""District table note of a district shown this week whose last week is withheld."""
+
+
+def withheld_sentence(
+    *, n_now: int, n_before: int, total_now_reason: str = "", total_before_reason: str = ""
+) -> str:
+    """The report's short disclosure note: how many districts are withheld (never which rule).
+
+    Empty when nothing is withheld.
+
+    >>> withheld_sentence(n_now=2, n_before=1)
+    '2 districts withheld to protect small counts this week (1 district last week); their counts, percentages and every figure derived from them are not shown.'
+    >>> withheld_sentence(n_now=0, n_before=0)
+    ''
+    """
+    if not (n_now or n_before or total_now_reason or total_before_reason):
+        return ""
+
+    def districts(n: int) -> str:
+        return f"{n} district" + ("" if n == 1 else "s")
+
+    if n_now:
+        text = f"{districts(n_now)} withheld to protect small counts this week"
+        if n_before:
+            text += f" ({districts(n_before)} last week)"
+    elif n_before:
+        text = f"{districts(n_before)} withheld to protect small counts last week"
+    else:
+        text = ""
+    if text:
+        text += "; their counts, percentages and every figure derived from them are not shown."
+    for which, reason in (("This week's", total_now_reason), ("Last week's", total_before_reason)):
+        if reason:
+            text += (" " if text else "") + f"{which} jurisdiction total is withheld as well: {reason}."
+    return text
+
+
+def redacted_finding(rule: str) -> str:
+    """Message of a data-quality finding about a district whose counts are withheld.
+
+    >>> redacted_finding("revision-large")
+    'revision-large on a district whose counts are withheld to protect small counts; its values are not shown'
+    """
+    return f"{rule} on a district whose counts are withheld to protect small counts; its values are not shown"
