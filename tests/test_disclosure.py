@@ -733,3 +733,17 @@ def test_findings_about_withheld_districts_are_redacted() -> None:
         assert f.line in (291, None) and f.file == "extract.csv"
     assert out.findings[2] == report.findings[2]  # 0421 is another district
     assert redact_findings(report, set()) is report
+
+
+def test_old_key_analysis_keep_suppressed_values_names_its_new_place() -> None:
+    from sitrep.config import config_from_dict
+    from sitrep.errors import ConfigError
+
+    with pytest.raises(ConfigError, match=r"moved: set keep_suppressed_values in \[output\]"):
+        config_from_dict({"analysis": {"keep_suppressed_values": True}})
+    config = config_from_dict({"analysis": {"min_count": 3, "suppress_zero": True},
+                               "output": {"keep_suppressed_values": True}})
+    assert (config.analysis.min_count, config.analysis.suppress_zero) == (3, True)
+    assert config.output.keep_suppressed_values
+    with pytest.raises(ConfigError, match="min_count must not be negative"):
+        config_from_dict({"analysis": {"min_count": -1}})

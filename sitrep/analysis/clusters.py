@@ -228,7 +228,7 @@ def _tested_set(values: FloatArray, dg: DistrictGraph) -> _Tested:
     notes: list[str] = []
     if no_data:
         notes.append(
-            f"{len(no_data)} district(s) without data this week were left out of the "
+            f"{len(no_data)} district(s) without data or withheld this week were left out of the "
             f"cluster statistic: {', '.join(no_data)}"
         )
     originally = set(dg.no_neighbours)
