@@ -177,6 +177,13 @@ def _parser() -> argparse.ArgumentParser:
     k.add_argument("--out", type=Path, required=True, metavar="FOLDER",
                    help="folder for the key pair (created 0700 when missing)")
 
+    p = verb("index", "write the archive's audit index (index.html) and a comparison page per reissue")
+    p.epilog = (
+        "exit codes: 0 written and every bundle verifies · 1 written, but a bundle fails its\n"
+        "checksums or breaks its chain (marked in the index) · 2 the folder is not an archive"
+    )
+    p.add_argument("archive", type=Path, help="the archive root ([output] archive)")
+
     p = verb("check-draft", "compare an edited draft with the bundle it came from")
     p.epilog = (
         "exit codes: 0 nothing in the edit contradicts the bundle · 1 at least one figure, district,\n"
@@ -474,6 +481,23 @@ def _cmd_keys(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
+def _cmd_index(args: argparse.Namespace) -> int:
+    from sitrep.deliver.index import write_index
+    from sitrep.errors import DeliveryError
+
+    if not args.archive.is_dir():
+        raise ConfigError(f"{args.archive} is not a folder; pass the archive root ([output] archive)")
+    try:
+        written, entries = write_index(args.archive)
+    except DeliveryError as exc:
+        raise ConfigError(str(exc)) from None
+    bad = [e for e in entries if e.checksums != "ok" or "broken" in e.chain]
+    for e in bad:
+        print(f"problem: {e.jurisdiction} {e.week} v{e.version}: checksums {e.checksums}, chain {e.chain}")
+    print(f"wrote {written[-1]} ({len(entries)} bundle(s); {len(written) - 1} comparison page(s))")
+    return EXIT_BLOCKED if bad else EXIT_OK
+
+
 def _cmd_check_draft(args: argparse.Namespace) -> int:
     from sitrep.deliver.archive import verify_bundle
     from sitrep.deliver.draft_check import as_json, check_draft, read_edited_draft
@@ -511,15 +535,25 @@ def _resend_advice(bundle: Path, config_path: Path) -> str:
     )
 
 
+def _refresh_index(config: Config) -> None:
+    """The archive index shows delivery outcomes: rewrite it after a send."""
+    if config.output.archive is not None and config.output.archive.is_dir():
+        from sitrep.deliver.index import refresh_index
+
+        refresh_index(config.output.archive, lambda m: print(m, file=sys.stderr))
+
+
 def _cmd_send(args: argparse.Namespace) -> int:
     from sitrep.delivery_jobs import send_archived
 
+    config = _load(args.config)
     try:
-        outcome = send_archived(_load(args.config), args.bundle, dry_run=args.dry_run, resend=args.resend)
+        outcome = send_archived(config, args.bundle, dry_run=args.dry_run, resend=args.resend)
     except ValidationFailed as exc:
         if exc.report is not None:
             _print_findings(exc.report, sys.stderr)
         raise
+    _refresh_index(config)
     if outcome.status == "dry-run":
         print(f"dry run: {outcome.detail}; nothing was sent")
         return EXIT_OK
@@ -544,14 +578,14 @@ def _cmd_send(args: argparse.Namespace) -> int:
 def _cmd_run(args: argparse.Namespace) -> int:
     from sitrep.delivery_jobs import scheduled_run
 
+    config = _load(args.config)
     try:
-        report = scheduled_run(
-            _load(args.config), dry_run=args.dry_run, today=args.today, log=lambda m: print(m)
-        )
+        report = scheduled_run(config, dry_run=args.dry_run, today=args.today, log=lambda m: print(m))
     except ValidationFailed as exc:
         if exc.report is not None:
             _print_findings(exc.report, sys.stderr)
         raise
+    _refresh_index(config)
     print(report.message, file=sys.stdout if report.ok else sys.stderr)
     return EXIT_OK if report.ok else EXIT_DELIVERY
 
@@ -564,6 +598,7 @@ COMMANDS = {
     "templates": _cmd_templates,
     "verify": _cmd_verify,
     "check-draft": _cmd_check_draft,
+    "index": _cmd_index,
     "keys": _cmd_keys,
     "send": _cmd_send,
     "run": _cmd_run,

@@ -517,6 +517,10 @@ def _build(
             )
             log(f"archived bundle {bundle.path}")
         written = write_outputs(out_dir or config.output.folder, files)
+        if bundle is not None and config.output.archive is not None:
+            from sitrep.deliver.index import refresh_index
+
+            refresh_index(config.output.archive, log)
     return RunResult(week, inputs.validation, written, bundle, analysis, context)
 
 

@@ -71,6 +71,26 @@ TEMPLATES: tuple[Template, ...] = (
     Template("email.txt.j2", "email.txt, the body of the e-mail", (_C,)),
     Template("report.css", "the report's style sheet (HTML and PDF)", included_by="report.html.j2"),
     Template("sort_table.js", "the sorting of the HTML district table", included_by="report.html.j2"),
+    Template(
+        "archive_index.html.j2",
+        "ARCHIVE/index.html, the audit index of every issued week (sitrep index)",
+        (
+            ("entries", "list of BundleEntry", "one row per bundle (sitrep/deliver/index.py), newest first"),
+            ("jurisdictions", "list of str", "the jurisdictions in the archive"),
+            ("generated", "str", "when the index was checked, UTC"),
+            ("problems", "int", "bundles that fail their checksums or break their chain"),
+        ),
+    ),
+    Template(
+        "archive_compare.html.j2",
+        "ARCHIVE/_compare/<jurisdiction>-<week>-v<j>-v<k>.html, what a reissue changed",
+        (
+            ("comparison", "Comparison", "figures, sentences and figure files that differ (sitrep/deliver/index.py)"),
+            ("generated", "str", "when the comparison was made, UTC"),
+        ),
+    ),
+    Template("archive.css", "the style of the archive pages", included_by="archive_index.html.j2"),
+    Template("archive_index.js", "the sorting of the archive table", included_by="archive_index.html.j2"),
 )
 """Every file of the packaged template folder, with what it receives."""
 
@@ -184,6 +204,9 @@ def templates_markdown() -> str:
             continue
         out += ["", "Variables:", ""]
         out += [f"- `{n}` ({kind}): {meaning}" for n, kind, meaning in t.variables]
+        if not any(n == "c" and kind == "ReportContext" for n, kind, _ in t.variables):
+            out.append("")  # the archive pages: their variables are described above
+            continue
         used = context_fields(t.name)
         out += ["", "Fields of `c` the packaged template uses:", "", "| field | type |", "| --- | --- |"]
         out += [f"| `c.{n}` | `{_field_type(fields, n)}` |" for n in used]
