@@ -101,7 +101,10 @@ class JobResult:
     bundle : str or None
         Path of the archived bundle, when one was written.
     message : str
-        One line: the number of data-quality warnings, or what went wrong.
+        One line: the number of data-quality warnings (and, for a bundle held
+        for review under ``[delivery] require_review``, what holds it and the
+        ``sitrep approve`` command), or what went wrong. A batch only builds:
+        a held bundle is sent by ``sitrep send`` / ``sitrep run`` once approved.
     """
 
     config: str
@@ -112,6 +115,8 @@ class JobResult:
     seconds: float
     bundle: str | None
     message: str
+    held: bool = False
+    """The bundle is a draft held for review (``[delivery] require_review``)."""
 
 
 @dataclasses.dataclass(frozen=True)
@@ -206,6 +211,19 @@ def run_job(config: Config, label: str, options: _Options) -> JobResult:
                 message,
             )
     warnings = len(result.validation.warnings)
+    message = f"{warnings} data-quality warning(s)"
+    held = False
+    if result.bundle is not None:
+        from sitrep.deliver.review import review_state
+
+        review = review_state(result.bundle.path, config.delivery.require_review)
+        held = not review.may_send
+        if held:
+            what = "; ".join(r.describe() for r in review.reasons) or "every week is reviewed"
+            message += (
+                f"; draft held for review ({what}): sitrep approve {result.bundle.path} "
+                '--by "Name" before it is sent'
+            )
     return JobResult(
         config=label,
         jurisdiction=config.report.jurisdiction,
@@ -214,7 +232,8 @@ def run_job(config: Config, label: str, options: _Options) -> JobResult:
         exit_code=EXIT_CODES["ok"],
         seconds=time.perf_counter() - start,
         bundle=str(result.bundle.path) if result.bundle is not None else None,
-        message=f"{warnings} data-quality warning(s)",
+        message=message,
+        held=held,
     )
 
 
@@ -446,6 +465,10 @@ def summary_table(results: Sequence[JobResult]) -> str:
     if problems:
         out.append("")
         out += [f"{r.status} {r.jurisdiction} ({r.config}): {r.message}" for r in problems]
+    held = [r for r in results if r.held]
+    if held:
+        out.append("")
+        out += [f"held {r.jurisdiction} ({r.config}): {r.message}" for r in held]
     counts = {
         s: sum(r.status == s for r in results) for s in ("ok", "already-archived", "blocked", "failed")
     }

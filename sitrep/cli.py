@@ -7,6 +7,7 @@ Exit codes (also in ``sitrep --help``):
 1     blocked by validation (or an input could not be read)
 2     usage or configuration error
 3     delivery failed (archive, PDF engine or e-mail)
+4     built and archived, held for review (``sitrep approve``)
 5     already archived: the week has a bundle and nothing was built
 ====  ==========================================================
 
@@ -31,6 +32,7 @@ from sitrep.errors import (
     DeliveryError,
     InputError,
     RenderError,
+    ReviewRequired,
     SitrepError,
     ValidationFailed,
 )
@@ -40,16 +42,18 @@ if TYPE_CHECKING:
     from sitrep.deliver.signing import PublicKey
     from sitrep.model import ValidationReport
 
-__all__ = ["EXIT_ARCHIVED", "EXIT_BLOCKED", "EXIT_DELIVERY", "EXIT_OK", "EXIT_USAGE", "main"]
+__all__ = ["EXIT_ARCHIVED", "EXIT_BLOCKED", "EXIT_DELIVERY", "EXIT_HELD", "EXIT_OK", "EXIT_USAGE", "main"]
 
 EXIT_OK = 0
 EXIT_BLOCKED = 1
 EXIT_USAGE = 2
 EXIT_DELIVERY = 3
+EXIT_HELD = 4
 EXIT_ARCHIVED = 5
 
 EPILOG = """exit codes: 0 done · 1 blocked by validation or unreadable input ·
 2 usage or configuration error · 3 delivery failed (archive, PDF or e-mail) ·
+4 built and archived, held for review (sitrep approve releases it) ·
 5 already archived (nothing built: --no-archive to preview, --reissue to correct)"""
 
 
@@ -154,9 +158,12 @@ def _parser() -> argparse.ArgumentParser:
 
     p = verb("verify", "recompute every checksum of an archived bundle, check its signature or a chain")
     p.epilog = (
+        "Also prints the bundle's review state (draft, or approved by whom and when) from\n"
+        "<bundle>.review.jsonl beside it.\n"
         "exit codes: 0 every checksum (and signature, and link) is good · 1 a file is missing,\n"
-        "changed or extra, a signature is missing, invalid or by an untrusted key, or a chain\n"
-        "link is broken · 2 the path is not a bundle (or jurisdiction) folder, or a key is unreadable"
+        "changed or extra, a signature is missing, invalid or by an untrusted key, a chain\n"
+        "link is broken, or the review record was altered · 2 the path is not a bundle (or\n"
+        "jurisdiction) folder, or a key is unreadable"
     )
     p.add_argument("bundle", type=Path, nargs="?", default=None,
                    help="bundle folder, e.g. ARCHIVE/<jurisdiction>/2026-W47/v1")
@@ -199,7 +206,8 @@ def _parser() -> argparse.ArgumentParser:
         "exit codes: 0 sent, or written as <bundle>.eml with --dry-run · 1 the archived run was\n"
         "blocked by validation (nothing is sent) · 2 usage or configuration error (e-mail disabled,\n"
         "no recipients, another jurisdiction's bundle) · 3 delivery failed, partial or unknown, the\n"
-        "bundle fails verification, or it was already sent: a second send is refused unless --resend.\n"
+        "bundle fails verification, or it was already sent: a second send is refused unless --resend ·\n"
+        "4 held for review (delivery.require_review): nothing is sent until `sitrep approve`.\n"
         "After 'unknown' (connection lost once the message was transmitted) ask a recipient whether\n"
         "it arrived before using --resend."
     )
@@ -213,14 +221,29 @@ def _parser() -> argparse.ArgumentParser:
         "The report week is the latest week of the newest extract matching input.inbox_pattern in\n"
         "input.inbox; the extract with the next older week is last week's table. A week already\n"
         "archived and sent is left alone (exit 0, 'nothing to do'); archived but unsent is sent.\n"
+        "A bundle held for review (delivery.require_review) is archived but not sent; after\n"
+        "`sitrep approve BUNDLE --by NAME` the next run sends it.\n"
         "exit codes: 0 done or nothing to do · 1 blocked by validation or unreadable/ambiguous\n"
         "extracts (nothing archived or sent) · 2 usage or configuration error · 3 delivery failed,\n"
-        "partial or unknown (see the message; nothing is resent automatically)"
+        "partial or unknown (see the message; nothing is resent automatically) · 4 built and\n"
+        "archived, held for review (the message says who must review what)"
     )
     p.add_argument("--config", type=Path, required=True, help="the jurisdiction's TOML configuration")
     p.add_argument("--dry-run", action="store_true", help="write the e-mail as .eml instead of sending")
     p.add_argument("--today", type=_date_arg, default=None, metavar="YYYY-MM-DD",
                    help="the day the future-week rule compares with (default: today)")
+
+    p = verb("approve", "sign off an archived bundle held for review, so that it can be sent")
+    p.epilog = (
+        "Appends one line (reviewer, UTC time, note, the findings that held it, the checksum of\n"
+        "the bundle's manifest and of the line before) to <bundle>.review.jsonl beside the bundle;\n"
+        "the bundle itself is not changed. Then `sitrep send` or the next `sitrep run` sends it.\n"
+        "exit codes: 0 approved · 1 the run was blocked by validation · 2 usage error ·\n"
+        "3 the bundle fails verification or its review record was altered (nothing written)"
+    )
+    p.add_argument("bundle", type=Path, help="bundle folder, e.g. ARCHIVE/<jurisdiction>/2026-W47/v1")
+    p.add_argument("--by", required=True, metavar="NAME", help="who reviewed the report")
+    p.add_argument("--note", default="", help="what was checked (one line)")
     return parser
 
 
@@ -312,6 +335,13 @@ def _build(
         print(f"wrote {path}")
     warnings = len(result.validation.warnings)
     print(f"week {result.week}: done with {warnings} data-quality warning(s)")
+    if result.bundle is not None:
+        from sitrep.deliver.review import held_message, review_state
+
+        review = review_state(result.bundle.path, config.delivery.require_review)
+        if not review.may_send:
+            print(f"draft {result.bundle.path}: " + held_message(
+                review, result.bundle.path, reviewer=config.delivery.reviewer, config_path=config.source))
     return EXIT_OK
 
 
@@ -444,6 +474,17 @@ def _cmd_verify(args: argparse.Namespace) -> int:
         f"{'OK' if result.ok else 'FAILED'}: {result.checked} file(s) checked in {args.bundle}; "
         f"signature: {words}"
     )
+    from sitrep.deliver.review import read_approvals, review_record_path
+
+    approvals, problem = read_approvals(args.bundle) if result.ok else ((), "")
+    if problem:
+        print(f"FAILED: review record {review_record_path(args.bundle)}: {problem}")
+        return EXIT_BLOCKED
+    if approvals:
+        for a in approvals:
+            print(f"review: approved by {a.by} at {a.time}" + (f" ({a.note})" if a.note else ""))
+    elif result.ok:
+        print("review: draft, not approved (sitrep approve BUNDLE --by NAME signs it off)")
     return EXIT_OK if result.ok else EXIT_BLOCKED
 
 
@@ -575,6 +616,21 @@ def _cmd_send(args: argparse.Namespace) -> int:
     return EXIT_DELIVERY
 
 
+def _cmd_approve(args: argparse.Namespace) -> int:
+    from sitrep.deliver.review import approve_bundle
+
+    approval, reasons = approve_bundle(args.bundle, by=args.by, note=args.note)
+    what = "; ".join(r.describe() for r in reasons) or "no finding held it"
+    print(f"approved {args.bundle} by {approval.by} at {approval.time} ({what})")
+    print("`sitrep send BUNDLE --config FILE` or the next `sitrep run` sends it")
+    archive = args.bundle.resolve().parents[2]  # ARCHIVE/<jurisdiction>/<week>/v<k>
+    if (archive / "index.html").is_file():  # the index shows review states: keep it current
+        from sitrep.deliver.index import refresh_index
+
+        refresh_index(archive, lambda m: print(m, file=sys.stderr))
+    return EXIT_OK
+
+
 def _cmd_run(args: argparse.Namespace) -> int:
     from sitrep.delivery_jobs import scheduled_run
 
@@ -587,6 +643,8 @@ def _cmd_run(args: argparse.Namespace) -> int:
         raise
     _refresh_index(config)
     print(report.message, file=sys.stdout if report.ok else sys.stderr)
+    if report.status == "held":
+        return EXIT_HELD
     return EXIT_OK if report.ok else EXIT_DELIVERY
 
 
@@ -602,6 +660,7 @@ COMMANDS = {
     "keys": _cmd_keys,
     "send": _cmd_send,
     "run": _cmd_run,
+    "approve": _cmd_approve,
 }
 
 
@@ -656,6 +715,9 @@ def main(argv: Sequence[str] | None = None) -> int:
     except DeliveryError as exc:
         print(f"delivery failed: {exc}", file=sys.stderr)
         return EXIT_DELIVERY
+    except ReviewRequired as exc:
+        print(f"held: {exc}", file=sys.stderr)
+        return EXIT_HELD
     except SitrepError as exc:  # pragma: no cover - every branch is listed above
         print(f"error: {exc}", file=sys.stderr)
         return EXIT_BLOCKED

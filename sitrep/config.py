@@ -21,6 +21,7 @@ __all__ = [
     "AnalysisSettings",
     "ColumnMap",
     "Config",
+    "DeliverySettings",
     "EmailSettings",
     "InputSettings",
     "OutputSettings",
@@ -230,6 +231,21 @@ class EmailSettings:
     retry_backoff_s: float = 30.0
 
 
+ReviewPolicy = Literal["always", "on-warnings", "never"]
+
+
+@dataclasses.dataclass(frozen=True)
+class DeliverySettings:
+    """Whether a built report needs a person's sign-off before it is e-mailed."""
+
+    require_review: ReviewPolicy = "on-warnings"
+    """``"always"``: every bundle waits for ``sitrep approve``; ``"on-warnings"``: a bundle
+    waits when a data-quality warning concerns a district named on page 1 or the jurisdiction
+    as a whole; ``"never"``: bundles are sent as soon as they are built."""
+    reviewer: str = ""
+    """Who signs off a held report (a name or a role), named in the held message."""
+
+
 @dataclasses.dataclass(frozen=True)
 class Config:
     """The whole configuration of one jurisdiction's weekly report."""
@@ -242,6 +258,7 @@ class Config:
     seasonal: SeasonalSettings = dataclasses.field(default_factory=SeasonalSettings)
     output: OutputSettings = dataclasses.field(default_factory=OutputSettings)
     email: EmailSettings = dataclasses.field(default_factory=EmailSettings)
+    delivery: DeliverySettings = dataclasses.field(default_factory=DeliverySettings)
     source: Path | None = None
     """The file this configuration was read from (set by :func:`load_config`)."""
 

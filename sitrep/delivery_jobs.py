@@ -4,13 +4,15 @@ Like :mod:`sitrep.pipeline`, this module composes stages; nothing in the
 stages imports it. Two jobs live here:
 
 * :func:`send_archived` e-mails one archived bundle (``sitrep send``), after
-  checking that the bundle is intact, was not blocked by validation and
-  belongs to the configured jurisdiction.
+  checking that the bundle is intact, was not blocked by validation, belongs
+  to the configured jurisdiction and is not held for review
+  (:mod:`sitrep.deliver.review`, ``[delivery] require_review``).
 * :func:`scheduled_run` is the Monday job (``sitrep run``): newest extract in
   the inbox -> build -> archive -> send, idempotent per report week.
 
 The send history of a bundle is kept next to it in ``<bundle>.sent.json``
-(written by :mod:`sitrep.deliver.mail`); :func:`delivery_state` reads it.
+(written by :mod:`sitrep.deliver.mail`); :func:`delivery_state` reads it. Its
+approvals are kept beside it too, in ``<bundle>.review.jsonl``.
 """
 
 from __future__ import annotations
@@ -35,7 +37,8 @@ from sitrep.deliver.archive import (
     verify_bundle,
 )
 from sitrep.deliver.mail import SendOutcome, send_bundle, sent_record_path
-from sitrep.errors import ConfigError, DeliveryError, InputError, ValidationFailed
+from sitrep.deliver.review import ReviewState, held_message, review_state
+from sitrep.errors import ConfigError, DeliveryError, InputError, ReviewRequired, ValidationFailed
 from sitrep.model import Finding, Severity, ValidationReport
 from sitrep.render.wording.mail import email_subject_text
 from sitrep.weeks import EpiWeek, WeekSystem
@@ -260,7 +263,11 @@ def send_archived(
        so one jurisdiction's report never goes to another's recipients;
     5. ``[email]`` is enabled (unless ``dry_run``) and names a sender and
        recipients;
-    6. ``email.txt`` (key messages and cautions, written by the build) exists.
+    6. the bundle is not held for review: under ``[delivery] require_review``
+       it needs no sign-off, or ``<bundle>.review.jsonl`` holds a valid
+       approval of this manifest (a dry run is allowed while held: it only
+       writes the message to a file);
+    7. ``email.txt`` (key messages and cautions, written by the build) exists.
 
     Then :func:`~sitrep.deliver.mail.send_bundle` sends it (or writes
     ``<bundle>.eml`` for a dry run), refusing a bundle already sent unless
@@ -297,6 +304,9 @@ def send_archived(
     ValidationFailed
         The archived run was blocked by validation; ``report`` holds its
         findings (CLI exit 1).
+    ReviewRequired
+        The bundle is held for review and nobody approved it yet, or its
+        review record is broken (CLI exit 4; nothing was sent).
     DeliveryError
         The bundle fails verification, ``email.txt`` or ``report.pdf`` is
         missing, the bundle was already sent and ``resend`` is false, or
@@ -339,6 +349,13 @@ def send_archived(
             f"{config.report.jurisdiction!r}; use that jurisdiction's configuration file"
         )
     _check_email_settings(config, dry_run=dry_run)
+    if not dry_run:
+        review = review_state(bundle, config.delivery.require_review)
+        if not review.may_send:
+            message = held_message(
+                review, bundle, reviewer=config.delivery.reviewer, config_path=config.source
+            )
+            raise ReviewRequired(f"{bundle} was not sent: {message}")
     body_path = bundle / "email.txt"
     if not body_path.is_file():
         raise DeliveryError(
@@ -457,7 +474,7 @@ def _latest_archived_week(config: Config) -> str | None:
 
 # --------------------------------------------------------------------------- scheduled run
 
-RunStatus = Literal["sent", "dry-run", "nothing-to-do", "partial", "unknown", "failed"]
+RunStatus = Literal["sent", "dry-run", "nothing-to-do", "held", "partial", "unknown", "failed"]
 
 
 @dataclasses.dataclass(frozen=True)
@@ -465,10 +482,12 @@ class RunReport:
     """What one scheduled run did.
 
     ``status``: ``sent`` / ``dry-run`` (this run sent or wrote the .eml),
-    ``nothing-to-do`` (the week was already archived and sent), or the
-    delivery problem ``partial`` / ``unknown`` / ``failed`` (of this run's
-    send, or of an earlier one that needs a person: see ``message``).
-    ``built`` says whether this run built and archived the bundle.
+    ``nothing-to-do`` (the week was already archived and sent), ``held``
+    (archived, waiting for ``sitrep approve``: ``message`` says who must
+    review what; ``review`` holds the details), or the delivery problem
+    ``partial`` / ``unknown`` / ``failed`` (of this run's send, or of an
+    earlier one that needs a person: see ``message``). ``built`` says
+    whether this run built and archived the bundle.
     """
 
     status: RunStatus
@@ -479,10 +498,11 @@ class RunReport:
     built: bool
     outcome: SendOutcome | None
     message: str
+    review: ReviewState | None = None
 
     @property
     def ok(self) -> bool:
-        """True when nothing needs a person (CLI exit 0; otherwise exit 3)."""
+        """True when nothing needs a person (CLI exit 0; ``held`` exits 4, the rest 3)."""
         return self.status in ("sent", "dry-run", "nothing-to-do")
 
 
@@ -538,6 +558,10 @@ def scheduled_run(
        automatically); unsent or failed -> send it. Otherwise build it with
        :func:`sitrep.pipeline.build` (validation errors raise and nothing is
        archived or sent), then send the new bundle.
+    5. Before any real send, apply ``[delivery] require_review``: a bundle
+       held for review and not approved is not sent; the status is ``held``
+       and the message says who must review what. After ``sitrep approve``
+       the next run sends it (once: step 4 then finds it sent).
 
     Parameters
     ----------
@@ -623,6 +647,7 @@ def scheduled_run(
         built: bool,
         outcome: SendOutcome | None,
         message: str,
+        review: ReviewState | None = None,
     ) -> RunReport:
         return RunReport(
             status,
@@ -633,6 +658,7 @@ def scheduled_run(
             built,
             outcome,
             message,
+            review,
         )
 
     archive = config.output.archive
@@ -657,7 +683,7 @@ def scheduled_run(
             return report(
                 state.status, bundle, False, None, _attention(state, config, bundle) + note
             )
-        log(f"week {week} is archived ({bundle}) but not sent; sending it{note}")
+        log(f"week {week} is archived ({bundle}) but not sent{note}")
     else:
         run_config = dataclasses.replace(
             config,
@@ -680,17 +706,25 @@ def scheduled_run(
             raise DeliveryError("the build wrote no archive bundle")
         bundle = result.bundle.path
         built = True
+    done = "archived" if built else "already archived"
+    review = review_state(bundle, config.delivery.require_review)
+    if not review.may_send and not dry_run:
+        message = held_message(
+            review, bundle, reviewer=config.delivery.reviewer, config_path=config.source
+        )
+        return report("held", bundle, built, None, f"week {week}: {done} in {bundle}; {message}", review)
     outcome = send_archived(
         config, bundle, dry_run=dry_run, now=now, env=env, sleep=sleep, ssl_context=ssl_context
     )
-    done = "archived" if built else "already archived"
     if outcome.status == "dry-run":
+        held = "; held for review: a real send waits for `sitrep approve`" if not review.may_send else ""
         return report(
             "dry-run",
             bundle,
             built,
             outcome,
-            f"week {week}: {done} in {bundle}; e-mail not sent (dry run), {outcome.detail}",
+            f"week {week}: {done} in {bundle}; e-mail not sent (dry run), {outcome.detail}{held}",
+            review,
         )
     if outcome.status == "sent":
         return report(
@@ -698,7 +732,9 @@ def scheduled_run(
             bundle,
             built,
             outcome,
-            f"week {week}: {done} in {bundle}; e-mail sent, Message-ID {outcome.message_id}",
+            f"week {week}: {done} in {bundle}; e-mail sent, Message-ID {outcome.message_id}"
+            + (f" ({review.summary()})" if review.status == "approved" else ""),
+            review,
         )
     state = delivery_state(bundle)
     if outcome.status in ("unknown", "partial"):

@@ -9,8 +9,9 @@ maps each branch to an exit code (see ``sitrep.cli``)::
     ├── ValidationFailed     validation found error-level findings            -> exit 1
     ├── AnalysisError        the statistics cannot be computed as asked       -> exit 1
     ├── RenderError          a template or figure could not be produced       -> exit 1
-    └── DeliveryError        archive, PDF engine or e-mail failed             -> exit 3
-        └── ArchiveExists    the week is already archived; nothing was built  -> exit 5
+    ├── DeliveryError        archive, PDF engine or e-mail failed             -> exit 3
+    │   └── ArchiveExists    the week is already archived; nothing was built  -> exit 5
+    └── ReviewRequired       archived, but held until `sitrep approve`        -> exit 4
 
 Third-party errors are converted at the boundary with ``raise ... from exc`` so
 that a traceback never reaches the user.
@@ -30,6 +31,7 @@ __all__ = [
     "DeliveryError",
     "InputError",
     "RenderError",
+    "ReviewRequired",
     "SitrepError",
     "ValidationFailed",
 ]
@@ -79,3 +81,11 @@ class ArchiveExists(DeliveryError):
         super().__init__(message)
         self.week = week
         self.bundle = bundle
+
+
+class ReviewRequired(SitrepError):
+    """The bundle is archived but held: the review policy asks for ``sitrep approve`` first.
+
+    Not a failure: nothing was sent, on purpose. The message says who must
+    review what and the command that releases the bundle.
+    """

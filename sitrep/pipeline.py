@@ -361,13 +361,16 @@ def _build(
             write_bundle,
             write_outputs,
         )
+        from sitrep.deliver.review import page_one_districts
         from sitrep.render.context import build_context, context_digits
         from sitrep.render.dictionary import dictionary_csv
         from sitrep.render.draft import render_docx, render_email_body, render_markdown
         from sitrep.render.html import asset_dir, render_html
         from sitrep.render.report_figures import draw_report_figures
         from sitrep.render.results import (
+            INTERNAL_QUALITY_CSV,
             INTERNAL_RESULTS,
+            internal_quality_csv,
             internal_results_csv,
             redact_findings,
             results_csv,
@@ -478,6 +481,14 @@ def _build(
             files[INTERNAL_RESULTS] = internal_results_csv(
                 analysis, config.analysis, jurisdiction=name
             )
+        district_names = {
+            str(k): str(v)
+            for k, v in zip(analysis.table["district_id"], analysis.table["district_name"], strict=True)
+        }
+        # the annex keeps rule, file, line and column; withheld districts' values stay redacted
+        files[INTERNAL_QUALITY_CSV] = internal_quality_csv(
+            published_validation, district_names, context.named_district_ids
+        )
     if worker is not None:
         with _timed(timings, "pdf"):
             pdf = worker.result()
@@ -488,6 +499,7 @@ def _build(
             files[f"figures/{name}"] = data
         manifest = _manifest(config, week, inputs, versions, reissue_reason)
         manifest["report_version"] = context.report_version
+        manifest["page_one_districts"] = page_one_districts(context.named_district_ids, district_names)
         manifest["outputs"] = {
             name: {"sha256": hashlib.sha256(data).hexdigest(), "size_bytes": len(data)}
             for name, data in sorted(files.items())

@@ -39,8 +39,10 @@ RECIPIENTS = ["leadership@quillmarsh.example", "partners@quillmarsh.example"]
 def write_config(folder: Path, *, port: int | None = None, **changes: Any) -> Path:
     """The demo configuration with absolute input paths, tmp outputs and loopback e-mail.
 
-    ``changes`` are ``section__key=value``.
+    ``changes`` are ``section__key=value``. Sending needs no sign-off here
+    (``delivery.require_review = "never"``); the review gate has its own tests.
     """
+    changes = {"delivery__require_review": "never", **changes}
     return demo_config_file(folder, email__port=port or free_port(), **changes)
 
 
@@ -96,11 +98,14 @@ def test_top_level_help_and_usage_errors(capsys: pytest.CaptureFixture[str]) -> 
 def test_exit_codes_match_the_documented_tables(monkeypatch: pytest.MonkeyPatch) -> None:
     # The table in the cli docstring ...
     table = dict(re.findall(r"^(\d)\s{2,}(\S.*)$", cli.__doc__ or "", flags=re.MULTILINE))
-    assert set(table) == {"0", "1", "2", "3", "5"}
-    assert (cli.EXIT_OK, cli.EXIT_BLOCKED, cli.EXIT_USAGE, cli.EXIT_DELIVERY) == (0, 1, 2, 3)
+    assert set(table) == {"0", "1", "2", "3", "4", "5"}
+    assert (cli.EXIT_OK, cli.EXIT_BLOCKED, cli.EXIT_USAGE, cli.EXIT_DELIVERY, cli.EXIT_HELD) == (
+        0, 1, 2, 3, 4
+    )
     assert cli.EXIT_ARCHIVED == 5 and table["5"].startswith("already archived")
     assert table["0"] == "done" and table["1"].startswith("blocked")
     assert table["2"].startswith("usage") and table["3"].startswith("delivery")
+    assert "held for review" in table["4"]
     # ... and the exception tree in the errors docstring: main() maps each class to its code.
     tree = re.findall(r"── (\w+) [^\n]*-> exit (\d)$", errors.__doc__ or "", flags=re.MULTILINE)
     assert [name for name, _ in tree] == [
@@ -111,6 +116,7 @@ def test_exit_codes_match_the_documented_tables(monkeypatch: pytest.MonkeyPatch)
         "RenderError",
         "DeliveryError",
         "ArchiveExists",
+        "ReviewRequired",
     ]
     for name, code in tree:
         exc_type = getattr(errors, name)

@@ -64,6 +64,7 @@ def write_config(folder: Path, *, port: int, inbox: Path, archive: Path, **chang
         "input__table": None,
         "input__prior_table": None,
         "input__inbox": str(inbox),
+        "delivery__require_review": "never",
         "output__archive": str(archive),
         "email__port": port,
     }

@@ -19,7 +19,7 @@ pytestmark = pytest.mark.slow
 
 OUTPUTS = ("report.html", "report.pdf", "draft.md", "draft.docx", "results.csv", "results.json",
            "results-dictionary.csv",
-           "validation.json", "manifest.json", "email.txt")
+           "validation.json", "manifest.json", "email.txt", "internal-data-quality.csv")
 FORBIDDEN = re.compile(r"\b(nan|NaN|inf|Infinity|None)\b|\{\{|\}\}")
 
 

@@ -2,7 +2,9 @@
 
 from __future__ import annotations
 
+import csv
 import dataclasses
+import io
 import re
 from pathlib import Path
 
@@ -12,6 +14,7 @@ from conftest import DEMO, TODAY, demo_config
 
 from sitrep.errors import RenderError
 from sitrep.render import html as render_html_module
+from sitrep.render.context import QualityItem
 from sitrep.render.draft import render_markdown
 
 TEMPLATES = Path(__file__).resolve().parent.parent / "templates"
@@ -115,19 +118,29 @@ def test_one_past_season_says_which_thresholds_are_missing(tmp_path: Path) -> No
     assert "not available" in context.key_messages[1].lower()
 
 
-def test_pdf_lists_at_most_25_findings_and_says_so(demo_build) -> None:  # type: ignore[no-untyped-def]
-    from sitrep.render.context import PDF_FINDINGS, QualityItem
-
-    _, result, _ = demo_build
+def test_pdf_states_data_quality_plainly_and_the_html_lists_every_finding(demo_build) -> None:  # type: ignore[no-untyped-def]
+    """The partner PDF names no rule id, file or line; the screen report and the annex list each."""
+    config, result, folder = demo_build
     items = tuple(QualityItem("warning", "value-spike", f"t.csv, line {i}", "X", f"finding {i}") for i in range(2, 42))
-    context = dataclasses.replace(
-        result.context, quality=items, quality_pdf=items[:PDF_FINDINGS],
-        quality_pdf_note=f"The first {PDF_FINDINGS} of {len(items)} findings; the HTML report and validation.json list them all.",
-    )
+    context = dataclasses.replace(result.context, quality=items)
     pdf_html = render_html_module.render_html(context, for_pdf=True)
     screen = render_html_module.render_html(context)
-    assert pdf_html.count("<td>value-spike</td>") == 25 and "The first 25 of 40 findings" in pdf_html
-    assert screen.count("<td>value-spike</td>") == 40 and "The first 25" not in screen
+    assert "value-spike" not in pdf_html and "t.csv, line" not in pdf_html
+    assert screen.count("<td>value-spike</td>") == 40
+    # the demo's own statement: the revised districts that page 1 names, by name
+    statement = result.context.quality_statement
+    named = set(result.context.named_district_ids)
+    revised = {f.district_id for f in result.validation.warnings if f.rule == "revision-large"}
+    names = dict(zip(result.analysis.table["district_id"], result.analysis.table["district_name"], strict=True))
+    assert revised & named  # the demo's warnings concern districts page 1 names
+    for i in revised:
+        assert (names[i] in statement) == (i in named), i
+    assert statement in render_html_module.render_html(result.context, for_pdf=True)
+    # the internal annex lists every finding with rule, file, line and column
+    annex = list(csv.DictReader(io.StringIO((folder / "out" / "internal-data-quality.csv").read_text(encoding="utf-8-sig"))))
+    assert len(annex) == len(result.validation.findings)
+    row = next(r for r in annex if r["rule"] == "revision-large" and r["district_id"] in named)
+    assert row["file"] and row["line"].isdigit() and row["column"] and row["named_on_page_one"] == "true"
 
 
 def test_report_css_text_colours_meet_wcag_aa() -> None:

@@ -37,6 +37,7 @@ from typing import Any
 
 from sitrep.deliver.archive import MANIFEST_JSON, bundle_folders, verify_bundle
 from sitrep.deliver.chain import verify_chain
+from sitrep.deliver.review import read_approvals
 from sitrep.errors import DeliveryError
 
 __all__ = ["COMPARE_FOLDER", "INDEX_FILE", "BundleEntry", "Comparison", "compare_versions",
@@ -128,23 +129,17 @@ def _delivery(bundle: Path) -> str:
 
 
 def _review(bundle: Path) -> str:
-    path = bundle.with_name(bundle.name + ".review.jsonl")
+    """The review state as :mod:`sitrep.deliver.review` reads it (an altered record approves nothing)."""
     try:
-        lines = [ln for ln in path.read_text(encoding="utf-8").splitlines() if ln.strip()]
-    except OSError:
-        return "no review record"
-    approvals = []
-    for line in lines:
-        with contextlib.suppress(ValueError):
-            entry = json.loads(line)
-            if isinstance(entry, dict):
-                approvals.append(entry)
+        approvals, problem = read_approvals(bundle)
+    except DeliveryError as exc:
+        return f"review record unreadable ({exc})"
+    if problem:
+        return f"review record altered: {problem}"
     if not approvals:
         return "no review record"
     last = approvals[-1]
-    who = last.get("by") or last.get("reviewer") or "?"
-    when = str(last.get("at") or last.get("time") or "")[:16].replace("T", " ")
-    return f"approved by {who} {when}".strip()
+    return f"approved by {last.by} {last.time[:16].replace('T', ' ')}".strip()
 
 
 def scan_archive(archive: Path) -> list[BundleEntry]:

@@ -97,7 +97,6 @@ class SendOutcome:
 
 # --------------------------------------------------------------------------- message
 
-
 def _no_newlines(field: str, value: str) -> str:
     if not isinstance(value, str):
         raise DeliveryError(f"e-mail {field} must be text, got {type(value).__name__}")

@@ -121,9 +121,11 @@ class ReportContext:
     inputs: tuple[tuple[str, str, str], ...]
     plain_sections: tuple[tuple[str, str], ...]
     """(heading, plain-language paragraph) for the communications draft."""
-    quality_pdf: tuple[QualityItem, ...] = ()
-    """The first findings, for the PDF (the HTML and validation.json list all)."""
-    quality_pdf_note: str = ""
+    quality_statement: str = ""
+    """The PDF's plain statement of data quality (no rule ids, files or lines: those are in
+    the HTML report, validation.json and the internal annex internal-data-quality.csv)."""
+    quality_overall: tuple[str, ...] = ()
+    """Warnings about the jurisdiction's table as a whole (no district), for the PDF, as found."""
     analysis_notes: tuple[str, ...] = ()
     """What the statistics left out or could not do this week (e.g. districts without data)."""
     reissue_note: str = ""
@@ -144,6 +146,9 @@ class ReportContext:
     """The PDF's districts (highest ILI% first)."""
     disclosure_note: str = ""
     """How many districts are withheld to protect small counts (empty when none)."""
+    named_district_ids: tuple[str, ...] = ()
+    """Every district page 1 names (top third, high-value groups, groups gained or lost), by id:
+    the districts whose data-quality warnings hold a bundle for review."""
 
     @property
     def trend_figures(self) -> tuple[FigureItem, ...]:
@@ -156,8 +161,6 @@ class ReportContext:
         return tuple(f for f in self.figures if f.key != "trend")
 
 
-PDF_FINDINGS = 25
-"""Most data-quality findings listed in the PDF."""
 
 def _month_range(start: Any, end: Any) -> str:
     return fm.fmt_week_dates(start, end)
@@ -509,12 +512,19 @@ def build_context(
         versions=tuple(sorted(versions.items())),
         inputs=tuple((f.role, f.path.name, f.sha256) for f in inputs),
         plain_sections=plain,
-        quality_pdf=quality[:PDF_FINDINGS],
-        quality_pdf_note=(
-            f"The first {PDF_FINDINGS} of {len(quality)} findings; the HTML report and "
-            "validation.json list them all."
-            if len(quality) > PDF_FINDINGS
-            else ""
+        quality_overall=tuple(
+            dict.fromkeys(
+                f.message.replace(" -> ", " → ").rstrip(".") + "."
+                for f in validation.warnings
+                if not f.district_id
+            )
+        ),
+        quality_statement=nv.partner_quality_statement(
+            n_warnings=len(validation.warnings),
+            named_affected=sorted(
+                {names[f.district_id] for f in validation.warnings if f.district_id in named_ids},
+                key=str.casefold,
+            ),
         ),
         analysis_notes=tuple(dict.fromkeys(analysis.notes)),
         reissue_note=(
@@ -529,6 +539,7 @@ def build_context(
             top, confidence_label=conf_label, order="given", min_visits=a.min_visits
         ),
         disclosure_note=disclosure_note,
+        named_district_ids=tuple(sorted(named_ids)),
     )
 
 

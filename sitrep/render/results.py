@@ -1,4 +1,5 @@
-"""Machine-readable results: results.csv, results.json and validation.json.
+"""Machine-readable results: results.csv, results.json, validation.json and the internal
+data-quality annex (``internal-data-quality.csv``).
 
 results.csv is UTF-8 with a byte order mark (a spreadsheet opened by
 double-click then shows accented names correctly); results.json and
@@ -20,7 +21,7 @@ import io
 import json
 import math
 import re
-from collections.abc import Iterable
+from collections.abc import Collection, Iterable, Mapping
 from typing import Any
 
 import pandas as pd
@@ -34,10 +35,13 @@ from sitrep.render.wording.sentences import redacted_finding
 
 __all__ = [
     "COUNT_COLUMNS",
+    "INTERNAL_QUALITY_COLUMNS",
+    "INTERNAL_QUALITY_CSV",
     "INTERNAL_RESULTS",
     "RESULT_COLUMNS",
     "csv_field",
     "earlier_publication",
+    "internal_quality_csv",
     "internal_results_csv",
     "neutralise_formula",
     "redact_findings",
@@ -277,3 +281,43 @@ def redact_findings(report: ValidationReport, withheld: Iterable[str]) -> Valida
         return f
 
     return ValidationReport(tuple(redact(f) for f in report.findings))
+
+
+INTERNAL_QUALITY_CSV = "internal-data-quality.csv"
+"""The internal annex: for the surveillance team, never attached to the partner e-mail."""
+INTERNAL_QUALITY_COLUMNS = (
+    "severity", "rule", "file", "line", "column", "district_id", "district_name",
+    "named_on_page_one", "value", "message",
+)
+
+
+def internal_quality_csv(
+    report: ValidationReport, names: Mapping[str, str], named_on_page_one: Collection[str]
+) -> bytes:
+    """Every finding with its rule id, file, line and column, for the reviewer (UTF-8 CSV with a BOM).
+
+    One row per finding, errors first, then warnings, then notes, each in the
+    order validation found them; ``named_on_page_one`` says whether the
+    finding's district is one page 1 names (those hold a bundle for review).
+    Quoting and formula neutralising as in :func:`results_csv`.
+    """
+    order = {"error": 0, "warning": 1, "info": 2}
+    findings = sorted(report.findings, key=lambda f: order.get(f.severity.value, 3))
+    buffer = io.StringIO()
+    buffer.write(",".join(INTERNAL_QUALITY_COLUMNS) + "\n")
+    for f in findings:
+        district = f.district_id or ""
+        cells = [
+            f.severity.value,
+            f.rule,
+            f.file,
+            "" if f.line is None else str(f.line),
+            f.column or "",
+            district,
+            names.get(district, "") if district else "",
+            ("true" if district in named_on_page_one else "false") if district else "",
+            "" if f.value is None else str(f.value),
+            f.message,
+        ]
+        buffer.write(",".join(csv_field(neutralise_formula(c)) for c in cells) + "\n")
+    return BOM + buffer.getvalue().encode("utf-8")

@@ -43,6 +43,7 @@ __all__ = [
     "data_as_of",
     "data_quality_sentence",
     "is_borderline",
+    "partner_quality_statement",
     "level_sentence",
     "movement_phrase",
     "quality_highlight",
@@ -402,6 +403,28 @@ def data_quality_sentence(*, n_warnings: int, highlights: Sequence[str], in_sect
     if highlights:
         text += ": " + "; ".join(highlights)
     return text + ("." if in_section else " (listed in the data-quality section).")
+
+
+def partner_quality_statement(*, n_warnings: int, named_affected: Sequence[str]) -> str:
+    """The PDF's plain statement of data quality, after the summary sentence.
+
+    Names the districts of page 1 that a warning concerns, and says where the
+    detail is, without rule ids, files or line numbers.
+
+    >>> partner_quality_statement(n_warnings=5, named_affected=["Rookhallow", "Ivvenhold"])
+    'The warnings concern Ivvenhold and Rookhallow among the districts named above: read their figures with that in mind. The surveillance team keeps the detail of each finding and can be asked about it (contact below).'
+    >>> partner_quality_statement(n_warnings=0, named_affected=[])
+    ''
+    """
+    if n_warnings == 0:
+        return ""
+    detail = "The surveillance team keeps the detail of each finding and can be asked about it (contact below)."
+    if not named_affected:
+        return "None of the warnings concerns a district named above. " + detail
+    return (
+        f"The warnings concern {join_names(named_affected, limit=12)} among the districts named above: "
+        "read their figures with that in mind. " + detail
+    )
 
 
 def revision_note(*, published: float | None, revised: float | None) -> str:
