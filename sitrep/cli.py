@@ -57,6 +57,12 @@ EPILOG = """exit codes: 0 done · 1 blocked by validation or unreadable input ·
 5 already archived (nothing built: --no-archive to preview, --reissue to correct)"""
 
 
+_QUIET = (
+    "no progress: without it each stage prints a line with its time to stderr (a bar for the "
+    "long ones on a terminal); the files written and errors are still printed"
+)
+
+
 def _demo_inputs() -> Path:
     """The demo scenario folder shipped inside the package (``sitrep.demo_inputs``)."""
     import importlib.resources
@@ -96,6 +102,7 @@ def _parser() -> argparse.ArgumentParser:
     p.add_argument("--out", type=Path, default=Path("sitrep-demo"), help="output folder (default ./sitrep-demo)")
     p.add_argument("--inputs", type=Path, default=None,
                    help="demo inputs folder (default: the copy shipped inside the package)")
+    p.add_argument("--quiet", action="store_true", help=_QUIET)
 
     p = verb("build", "validate, analyse, render and archive this week's report")
     p.add_argument("--config", type=Path, action="append", default=None,
@@ -111,6 +118,7 @@ def _parser() -> argparse.ArgumentParser:
     p.add_argument("--reissue", metavar="REASON", default=None,
                    help="write a new version of an already archived week, giving the reason")
     p.add_argument("--no-archive", action="store_true", help="write the output folder only")
+    p.add_argument("--quiet", action="store_true", help=_QUIET)
     p.add_argument("--today", type=_date_arg, default=None, metavar="YYYY-MM-DD",
                    help="the day the future-week rule compares with (default: today); for "
                         "rebuilding or testing past weeks")
@@ -303,7 +311,7 @@ def _cmd_demo(args: argparse.Namespace) -> int:
     config = dataclasses.replace(
         config, output=dataclasses.replace(config.output, folder=out, archive=out / "archive")
     )
-    return _build(config, out, reissue=None, archive=True, demo=True)
+    return _build(config, out, reissue=None, archive=True, demo=True, quiet=args.quiet)
 
 
 def _build(
@@ -314,12 +322,22 @@ def _build(
     archive: bool,
     demo: bool = False,
     today: dt.date | None = None,
+    quiet: bool = False,
 ) -> int:
     from sitrep import pipeline
+    from sitrep.progress import Progress, TextProgress
+
+    def progress() -> Progress:
+        """Stage lines on stderr (a bar on a terminal); nothing with --quiet."""
+        return Progress() if quiet else TextProgress(sys.stderr)
+
+    def log(message: str) -> None:
+        if not quiet:
+            print(message)
 
     try:
         result = pipeline.build(config, out_dir=out, archive=archive, reissue_reason=reissue,
-                                today=today, log=lambda m: print(m))
+                                today=today, log=log, progress=progress())
     except ValidationFailed as exc:
         if exc.report is not None:
             _print_findings(exc.report, sys.stderr)
@@ -328,7 +346,7 @@ def _build(
         if demo and isinstance(exc, ArchiveExists):
             print(f"note: {exc}")
             result = pipeline.build(config, out_dir=out, archive=False, today=today,
-                                    log=lambda m: print(m))
+                                    log=log, progress=progress())
         else:
             raise
     for path in result.outputs:
@@ -356,7 +374,7 @@ def _cmd_build(args: argparse.Namespace) -> int:
     batch = len(configs) > 1 or args.configs_dir is not None or args.scheduler is not None
     if not batch and args.workers is None:
         return _build(_load(configs[0]), args.out, reissue=args.reissue,
-                      archive=not args.no_archive, today=args.today)
+                      archive=not args.no_archive, today=args.today, quiet=args.quiet)
     from sitrep.batch import batch_exit_code, run_batch, summary_table
 
     results = run_batch(

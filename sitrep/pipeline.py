@@ -25,7 +25,8 @@ from sitrep.errors import ConfigError, InputError, ValidationFailed
 from sitrep.ingest.geometry import read_districts
 from sitrep.ingest.read import read_count_table
 from sitrep.ingest.validate import validate_against_prior, validate_table
-from sitrep.model import CountTable, Districts, InputFile, ValidationReport
+from sitrep.model import CountTable, Districts, Finding, InputFile, Severity, ValidationReport
+from sitrep.progress import Progress
 from sitrep.weeks import EpiWeek, WeekSystem
 
 if TYPE_CHECKING:
@@ -40,6 +41,7 @@ if TYPE_CHECKING:
 # libpysal, statsmodels and the rest costs about 1.5 s (python -X importtime).
 
 __all__ = [
+    "PREFLIGHT_RULES",
     "STAGES",
     "WEIGHTS_CACHE_FOLDER",
     "Inputs",
@@ -47,6 +49,7 @@ __all__ = [
     "build",
     "check",
     "permutation_engine",
+    "preflight",
     "read_inputs",
 ]
 
@@ -76,16 +79,30 @@ another process while the drafts and results are made."""
 
 
 @contextlib.contextmanager
-def _timed(timings: dict[str, float] | None, stage: str) -> Iterator[None]:
-    """Add the wall-clock seconds of the block to ``timings[stage]`` (nothing when None)."""
-    if timings is None:
+def _timed(
+    timings: dict[str, float] | None,
+    stage: str,
+    progress: Progress | None = None,
+    detail: str = "",
+) -> Iterator[None]:
+    """Add the wall-clock seconds of the block to ``timings[stage]`` (nothing when None) and
+    report the stage to ``progress`` (its start, and its end when it succeeded)."""
+    if timings is None and progress is None:
         yield
         return
     start = time.perf_counter()
+    if progress is not None:
+        progress.start(stage, detail)
+    succeeded = False
     try:
         yield
+        succeeded = True
     finally:
-        timings[stage] = timings.get(stage, 0.0) + (time.perf_counter() - start)
+        elapsed = time.perf_counter() - start
+        if timings is not None:
+            timings[stage] = timings.get(stage, 0.0) + elapsed
+        if progress is not None and succeeded:
+            progress.finish(stage, elapsed)
 
 
 def _quiet(_: str) -> None:
@@ -135,17 +152,23 @@ def read_inputs(
     *,
     today: dt.date | None = None,
     timings: dict[str, float] | None = None,
+    progress: Progress | None = None,
+    out_dir: Path | None = None,
+    archive: bool = True,
 ) -> Inputs:
     """Read and validate this week's table, last week's, the history and the boundaries.
 
     Returns the inputs and every finding; raises only for unreadable files or
     configuration errors. ``Inputs.validation.blocked`` says whether to stop.
     When ``timings`` is given, the seconds spent reading (parse-stage rules
-    included) and validating are added to its ``"read"`` and ``"validate"`` keys.
+    included) and validating are added to its ``"read"`` and ``"validate"`` keys;
+    ``progress`` hears of both stages. The findings include those of
+    :func:`preflight` (``out_dir`` and ``archive`` as for :func:`build`), so
+    whatever would stop a build after validation is found here too.
     """
     system = WeekSystem(config.weeks.system)
     settings = config.input
-    with _timed(timings, "read"):
+    with _timed(timings, "read", progress):
         districts, report = read_districts(_require(settings.boundaries, "boundaries"), settings)
         table, found = read_count_table(
             _require(settings.table, "table"), settings, system, role="table"
@@ -159,7 +182,7 @@ def read_inputs(
             history, found = read_count_table(settings.history, settings, system, role="history")
             report = report.merged(found)
     start = config.weeks.season_start_week
-    with _timed(timings, "validate"):
+    with _timed(timings, "validate", progress):
         if table is not None:
             weekly, inferred = _weekly_file(config, prior)
             report = report.merged(
@@ -177,6 +200,9 @@ def read_inputs(
             )
         if table is not None and prior is not None:
             report = report.merged(validate_against_prior(table, prior, config.validation))
+        report = report.merged(
+            ValidationReport(preflight(config, table, districts, out_dir=out_dir, archive=archive))
+        )
     return Inputs(table, prior, history, districts, ValidationReport(_dedupe(report.findings)))
 
 
@@ -201,8 +227,164 @@ def _dedupe(findings: tuple[Any, ...]) -> tuple[Any, ...]:
 
 
 def check(config: Config, *, today: dt.date | None = None) -> ValidationReport:
-    """Validate the configured inputs without writing anything."""
-    return read_inputs(config, today=today).validation
+    """Validate the configured inputs without writing anything.
+
+    Every condition that would stop ``build`` is an error here too
+    (:func:`preflight`), and a signing key that ``build`` could not use
+    raises the same error as there; a report week that is already archived is
+    a note, since ``build --no-archive`` and ``build --reissue`` still work.
+    """
+    inputs = read_inputs(config, today=today)
+    if not inputs.validation.blocked and config.output.archive is not None:
+        _signer(config)  # a missing or unsafe signing key stops check as it stops build
+    note = _archived_note(config, inputs.table)
+    if note is None:
+        return inputs.validation
+    return ValidationReport((*inputs.validation.findings, note))
+
+
+def _archived_note(config: Config, table: CountTable | None) -> Finding | None:
+    """An info finding when the week a build would report already has a bundle."""
+    if config.output.archive is None or table is None or not config.output.archive.is_dir():
+        return None
+    from sitrep.deliver.archive import bundle_dir, next_version
+
+    system = WeekSystem(config.weeks.system)
+    week = (
+        EpiWeek.parse(config.weeks.report_week, system) if config.weeks.report_week else table.latest_week
+    )
+    latest = next_version(config.output.archive, config.report.jurisdiction, str(week)) - 1
+    if latest < 1:
+        return None
+    bundle = bundle_dir(config.output.archive, config.report.jurisdiction, str(week), latest)
+    return Finding(
+        Severity.INFO,
+        "week-archived",
+        f"{week} is already archived as {bundle}, so sitrep build will refuse it: use "
+        '--no-archive to look at the report again, or --reissue "<reason>" to publish a correction',
+        value=str(week),
+    )
+
+
+PREFLIGHT_RULES: tuple[tuple[str, str], ...] = (
+    ("report-week-missing", "weeks.report_week names a week the table does not hold"),
+    ("neighbours-impossible", "analysis.knn_k cannot be met by the number of districts"),
+    ("template-folder-missing", "report.template_dir is not a folder"),
+    (
+        "template-invalid",
+        "a template in report.template_dir cannot be parsed or uses a value the report does not have",
+    ),
+    ("output-folder-unusable", "output.folder or output.archive is a file, or a link leads out of it"),
+    ("week-archived", "the report week is already archived: build needs --reissue or --no-archive (info)"),
+)
+"""Rules of :func:`preflight`: conditions outside the input files that would stop a build
+after validation. Both ``check`` and ``build`` apply them, so a check that passes means a build
+that is not refused for them."""
+
+_OUTPUT_NAMES = (
+    "report.html", "report.pdf", "draft.md", "draft.docx", "email.txt", "results.csv",
+    "results.json", "results-dictionary.csv", "validation.json", "manifest.json",
+    "figures/map.svg",
+)
+
+
+def preflight(
+    config: Config,
+    table: CountTable | None,
+    districts: Districts | None,
+    *,
+    out_dir: Path | None = None,
+    archive: bool = True,
+) -> tuple[Finding, ...]:
+    """Error findings for what would stop a build after validation (:data:`PREFLIGHT_RULES`).
+
+    ``out_dir`` is the output folder the build writes (default
+    ``output.folder``); the archive folder is checked when ``archive``. The
+    ``week-archived`` note is :func:`check`'s own.
+    """
+    found: list[Finding] = []
+    if table is not None and config.weeks.report_week:
+        week = EpiWeek.parse(config.weeks.report_week, WeekSystem(config.weeks.system))
+        if week not in table.weeks:
+            found.append(
+                Finding(
+                    Severity.ERROR,
+                    "report-week-missing",
+                    f"weeks.report_week = {config.weeks.report_week!r}, but "
+                    f"{table.source.path.name} holds {table.weeks[0]} to {table.weeks[-1]}; set "
+                    "weeks.report_week to one of them, or remove it to report the latest week",
+                    file=table.source.path.name,
+                    value=config.weeks.report_week,
+                )
+            )
+    a = config.analysis
+    if districts is not None and a.weights == "knn" and not 1 <= a.knn_k <= len(districts.ids) - 1:
+        found.append(
+            Finding(
+                Severity.ERROR,
+                "neighbours-impossible",
+                f"analysis.knn_k = {a.knn_k} nearest neighbours, but the boundaries hold "
+                f"{len(districts.ids)} districts (at most {len(districts.ids) - 1} neighbours "
+                "each); lower analysis.knn_k",
+                file=districts.source.path.name,
+                value=str(a.knn_k),
+            )
+        )
+    if config.report.template_dir is not None:
+        found += _template_findings(config.report.template_dir)
+    found += _folder_findings(config, out_dir or config.output.folder, archive)
+    return tuple(found)
+
+
+def _template_findings(folder: Path) -> list[Finding]:
+    """A missing override folder, or an override template that cannot be parsed or names an
+    unknown value (parsed, not rendered: a loop variable's fields are not checked)."""
+    if not folder.is_dir():
+        return [
+            Finding(
+                Severity.ERROR,
+                "template-folder-missing",
+                f"report.template_dir = {str(folder)!r} is not a folder; create it with sitrep "
+                "templates --copy DIR, or remove the key to use the packaged templates",
+                value=str(folder),
+            )
+        ]
+    from sitrep.render.templates import template_problems
+
+    return [
+        Finding(Severity.ERROR, "template-invalid", message, file=name, line=line)
+        for name, line, message in template_problems(folder)
+    ]
+
+
+def _folder_findings(config: Config, out_dir: Path, archive: bool) -> list[Finding]:
+    from sitrep.deliver.archive import check_outputs
+    from sitrep.errors import DeliveryError
+
+    found = []
+    places = [("output.folder", out_dir)]
+    if archive and config.output.archive is not None:
+        places.append(("output.archive", config.output.archive))
+    for key, folder in places:
+        problem = ""
+        if folder.exists() and not folder.is_dir():
+            problem = f"{key} = {str(folder)!r} is a file, not a folder"
+        elif key == "output.folder":
+            try:
+                check_outputs(folder, list(_OUTPUT_NAMES))
+            except DeliveryError as exc:
+                problem = str(exc)
+        if problem:
+            found.append(
+                Finding(
+                    Severity.ERROR,
+                    "output-folder-unusable",
+                    f"{problem}; give {key} a folder sitrep may write into",
+                    value=str(folder),
+                )
+            )
+    return found
+
 
 
 _GRAPH_CACHE: collections.OrderedDict[tuple[Any, ...], DistrictGraph] = collections.OrderedDict()
@@ -245,11 +427,19 @@ def _graph(districts: Districts, config: Config, log: Log = _quiet) -> DistrictG
         ),
     )
     if outcome.status != "off":
-        log(f"weights cache: {outcome.status}" + (f" ({outcome.reason})" if outcome.reason else ""))
+        log(_CACHE_WORDS[outcome.status] + (f" ({outcome.reason})" if outcome.reason else ""))
     _GRAPH_CACHE[key] = graph
     while len(_GRAPH_CACHE) > _GRAPH_CACHE_SIZE:
         _GRAPH_CACHE.popitem(last=False)
     return graph
+
+
+_CACHE_WORDS = {
+    "hit": "neighbours: reused from an earlier run (same boundary file and settings)",
+    "miss": "neighbours: worked out from the boundaries and kept for later runs",
+    "rebuilt": "neighbours: worked out again from the boundaries (the kept copy could not be used)",
+}
+"""What the weights cache did, in words (see :class:`sitrep.cache.CacheOutcome`)."""
 
 
 def permutation_engine() -> str:
@@ -274,6 +464,7 @@ def build(
     today: dt.date | None = None,
     log: Log = _quiet,
     timings: dict[str, float] | None = None,
+    progress: Progress | None = None,
 ) -> RunResult:
     """Run the whole weekly job.
 
@@ -297,6 +488,10 @@ def build(
         When given, the wall-clock seconds of each stage of :data:`STAGES`
         are added to it (``time.perf_counter`` around each stage; a stage that
         did not run is absent). Nothing is printed. For benchmarks.
+    progress : Progress, optional
+        Hears each stage as it starts and ends, and the pieces done inside the
+        permutation and map stages (:mod:`sitrep.progress`); it writes
+        nowhere near the outputs, which are the same with or without it.
 
     Returns
     -------
@@ -321,9 +516,12 @@ def build(
             today=today,
             log=log,
             timings=timings,
+            progress=progress,
             worker=worker,
         )
     finally:
+        if progress is not None:
+            progress.close()
         if worker is not None:
             worker.close()
 
@@ -337,17 +535,25 @@ def _build(
     today: dt.date | None,
     log: Log,
     timings: dict[str, float] | None,
+    progress: Progress | None,
     worker: Any,
 ) -> RunResult:
     """:func:`build` with the PDF worker already started."""
-    signer = _signer(config) if archive and config.output.archive is not None else None
-    inputs = read_inputs(config, today=today or dt.date.today(), timings=timings)
+    inputs = read_inputs(
+        config,
+        today=today or dt.date.today(),
+        timings=timings,
+        progress=progress,
+        out_dir=out_dir,
+        archive=archive,
+    )
     if inputs.validation.blocked:
         raise ValidationFailed(
             f"validation found {len(inputs.validation.errors)} error(s); nothing was written",
             inputs.validation,
         )
-    with _timed(timings, "imports"):
+    signer = _signer(config) if archive and config.output.archive is not None else None
+    with _timed(timings, "imports", progress):
         from sitrep.analysis.seasonal_context import seasonal_context
         from sitrep.analysis.week import analyse_week
         from sitrep.deliver.archive import (
@@ -402,15 +608,16 @@ def _build(
                 str(week),
                 bundle_dir(config.output.archive, config.report.jurisdiction, str(week), latest),
             )
-    with _timed(timings, "weights"):
+    with _timed(timings, "weights", progress):
         graph = _graph(inputs.districts, config, log)
-    with _timed(timings, "analysis"):
+    runs = f"{config.analysis.permutations:,} permutations"
+    with _timed(timings, "analysis", progress, runs):
         earlier = _earlier_publications(config, week) if archive else {}
         analysis = analyse_week(
             inputs.table, inputs.prior, inputs.districts, graph, config.analysis, week=week,
-            earlier=earlier,
+            earlier=earlier, on_step=_stepper(progress, "analysis"),
         )
-    with _timed(timings, "thresholds"):
+    with _timed(timings, "thresholds", progress):
         seasonal = seasonal_context(
             inputs.history, inputs.table, week, config.seasonal,
             season_start_week=config.weeks.season_start_week,
@@ -432,12 +639,12 @@ def _build(
             dt.datetime.fromtimestamp(epoch, dt.UTC).isoformat().replace("+00:00", "Z") if epoch is not None else ""
         )
         digits = context_digits(analysis, seasonal)
-        with _timed(timings, "maps"):
+        with _timed(timings, "maps", progress):
             figures = draw_report_figures(
-                analysis, seasonal, inputs.districts, digits=digits,
+                analysis, seasonal, inputs.districts, digits=digits, on_step=_stepper(progress, "maps"),
                 jurisdiction=config.report.jurisdiction, week_dates=fmt_week_dates(week.start, week.end),
             )
-        with _timed(timings, "html"):
+        with _timed(timings, "html", progress):
             context = build_context(
                 analysis=analysis,
                 seasonal=seasonal,
@@ -468,11 +675,11 @@ def _build(
                     if variant and variant.startswith("pdf/a-3")
                     else (),
                 )
-        with _timed(timings, "drafts"):
+        with _timed(timings, "drafts", progress):
             files["draft.md"] = render_markdown(context, config.report.template_dir).encode("utf-8")
             files["draft.docx"] = render_docx(context)
             files["email.txt"] = render_email_body(context, config.report.template_dir).encode("utf-8")
-    with _timed(timings, "results"):
+    with _timed(timings, "results", progress):
         files["results.csv"] = results_csv(analysis, config.analysis, jurisdiction=name)
         files["results.json"] = results_json(analysis, config.analysis, jurisdiction=name)
         files["results-dictionary.csv"] = dictionary_csv()
@@ -490,11 +697,11 @@ def _build(
             published_validation, district_names, context.named_district_ids
         )
     if worker is not None:
-        with _timed(timings, "pdf"):
+        with _timed(timings, "pdf", progress):
             pdf = worker.result()
         html_bytes = files.pop("report.html")
         files = {"report.html": html_bytes, "report.pdf": pdf, **files}  # the order of before
-    with _timed(timings, "archive"):
+    with _timed(timings, "archive", progress):
         for name, data in figures.files().items():
             files[f"figures/{name}"] = data
         manifest = _manifest(config, week, inputs, versions, reissue_reason)
@@ -589,6 +796,18 @@ def _signer(config: Config) -> Signer | None:
             "a signed one"
         )
     return None
+
+
+def _stepper(progress: Progress | None, stage: str) -> Callable[[int, int], None] | None:
+    """``on_step(done, total)`` for a stage function, passing the pieces to ``progress``."""
+    if progress is None:
+        return None
+    reporter = progress
+
+    def on_step(done: int, total: int) -> None:
+        reporter.step(stage, done, total)
+
+    return on_step
 
 
 def _manifest(

@@ -268,7 +268,8 @@ def test_pipeline_uses_the_cache_under_the_archive_root(tmp_path: Path) -> None:
     first = pipeline._graph(d, config, lines.append)
     pipeline._GRAPH_CACHE.clear()  # a new process: only the disk cache is left
     second = pipeline._graph(d, config, lines.append)
-    assert lines == ["weights cache: miss", "weights cache: hit"]
+    assert lines == [pipeline._CACHE_WORDS["miss"], pipeline._CACHE_WORDS["hit"]]
+    assert lines[1] == "neighbours: reused from an earlier run (same boundary file and settings)"
     assert (tmp_path / "archive" / pipeline.WEIGHTS_CACHE_FOLDER).is_dir()
     assert (
         dict(first.neighbours)

@@ -208,8 +208,12 @@ def escaping(tmp_path_factory: pytest.TempPathFactory) -> types.SimpleNamespace:
     week.out.mkdir()
     (week.out / "figures").symlink_to(outside, target_is_directory=True)
     before = tree_hashes(week.out)
-    with pytest.raises(DeliveryError, match="leaves") as info:
+    # refused with the other checks, before any work (sitrep check finds it too)
+    with pytest.raises(ValidationFailed) as info:
         build(week)
+    assert info.value.report is not None
+    errors = info.value.report.errors
+    assert [f.rule for f in errors] == ["output-folder-unusable"] and "leaves" in errors[0].message
     return types.SimpleNamespace(week=week, outside=outside, before=before, error=info.value)
 
 

@@ -58,11 +58,15 @@ TOP_LEVEL: dict[str, set[str]] = {
     "config": {"errors", "model", "weeks"},
     "weeks": set(),
     "cache": {"analysis", *SHARED},
-    "pipeline": {*ORDER, *SHARED, "cache", "versions"},
+    "progress": set(),
+    "pipeline": {*ORDER, *SHARED, "cache", "versions", "progress"},
     "batch": {"pipeline", "deliver", *SHARED},
     "delivery_jobs": {*ORDER, *SHARED, "pipeline"},
     "starter": {"ingest", *SHARED},
-    "cli": {*ORDER, *SHARED, "pipeline", "batch", "delivery_jobs", "cache", "versions", "starter"},
+    "cli": {
+        *ORDER, *SHARED, "pipeline", "batch", "delivery_jobs", "cache", "versions", "starter",
+        "progress",
+    },
 }
 
 

@@ -17,7 +17,7 @@ import pytest
 from sitrep import cli
 from sitrep.errors import ConfigError
 from sitrep.render.html import environment, packaged_template_dir
-from sitrep.render.templates import TEMPLATES, context_fields, copy_templates
+from sitrep.render.templates import TEMPLATES, context_fields, copy_templates, template_problems
 
 ROOT = Path(__file__).resolve().parent.parent
 
@@ -112,3 +112,14 @@ def test_docs_templates_page_is_generated_from_the_code() -> None:
         assert f"## `{t.name}`" in page
         for field in context_fields(t.name) if not t.included_by else ():
             assert f"`c.{field}`" in page
+
+
+def test_an_unchanged_copy_has_no_problems_and_a_broken_one_is_located(tmp_path: Path) -> None:
+    copy_templates(tmp_path)
+    assert template_problems(tmp_path) == []
+    (tmp_path / "email.txt.j2").write_text("{{ c.title }}\n\n{% if c.contact %}\n", encoding="utf-8")
+    (tmp_path / "draft.md.j2").write_text("{% set x = 1 %}{{ x }} {{ c.no_such_field }}\n", encoding="utf-8")
+    problems = {name: (line, message) for name, line, message in template_problems(tmp_path)}
+    assert set(problems) == {"email.txt.j2", "draft.md.j2"}
+    assert problems["email.txt.j2"][0] == 3 and "cannot be parsed" in problems["email.txt.j2"][1]
+    assert problems["draft.md.j2"][0] == 1 and "c.no_such_field" in problems["draft.md.j2"][1]

@@ -18,7 +18,7 @@ The result, :class:`WeekAnalysis`, is what render receives.
 from __future__ import annotations
 
 import dataclasses
-from collections.abc import Mapping
+from collections.abc import Callable, Mapping
 from typing import TYPE_CHECKING
 
 import numpy as np
@@ -327,6 +327,10 @@ def _nan_sum(a: FloatArray) -> float:
     return float(a[present].sum()) if present.any() else float("nan")
 
 
+def _no_step(done: int, total: int) -> None:
+    """The default ``on_step`` of :func:`analyse_week`: nothing."""
+
+
 def analyse_week(
     current: CountTable,
     prior: CountTable | None,
@@ -337,6 +341,7 @@ def analyse_week(
     week: EpiWeek | None = None,
     recent_weeks: int = 4,
     earlier: Mapping[str, Earlier] | None = None,
+    on_step: Callable[[int, int], None] | None = None,
 ) -> WeekAnalysis:
     """Compute every district and jurisdiction figure of one report week.
 
@@ -362,6 +367,10 @@ def analyse_week(
         What earlier publications (earlier versions of this report, last
         week's report) showed and withheld of this week and last week; a
         district withheld there stays withheld (docs/methods.md §6.2).
+    on_step : callable, optional
+        Called as ``on_step(done, total)`` before and after each of the
+        permutation runs (this week's local and global statistics, last
+        week's local one), for a progress display; it cannot change a result.
 
     Returns
     -------
@@ -483,9 +492,14 @@ def analyse_week(
     eb_pct = 100.0 * eb_rates(np.where(usable, x1, np.nan), np.where(usable, n1, np.nan))
 
     # Clusters this week and last week, on the same graph and settings.
+    runs = 3 if before.has_data.any() else 2
+    step = on_step if on_step is not None else _no_step
+    step(0, runs)
     values = _cluster_values(settings, pct, eb_pct, usable)
     clusters = _local(values, dg, settings)
+    step(1, runs)
     gm = global_moran(values, dg, permutations=settings.permutations, seed=settings.seed)
+    step(2, runs)
     prior_clusters: ClusterResult | None = None
     if before.has_data.any():
         x0, n0 = before.ili, before.visits
@@ -493,6 +507,7 @@ def analyse_week(
         eb0 = 100.0 * eb_rates(np.where(usable0, x0, np.nan), np.where(usable0, n0, np.nan))
         values0 = _cluster_values(settings, ili_percent(x0, n0), eb0, usable0)
         prior_clusters = _local(values0, dg, settings)
+        step(3, runs)
     transitions = compare_weeks(clusters, prior_clusters, dg)
     notes.extend(f"clusters: {n}" for n in clusters.notes)
 

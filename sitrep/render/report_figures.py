@@ -11,6 +11,7 @@ from __future__ import annotations
 import base64
 import dataclasses
 import math
+from collections.abc import Callable
 
 import numpy as np
 
@@ -82,6 +83,7 @@ def draw_report_figures(
     digits: int = 1,
     jurisdiction: str = "",
     week_dates: str = "",
+    on_step: Callable[[int, int], None] | None = None,
 ) -> ReportFigures:
     """Draw the trend chart and the four maps of the report.
 
@@ -90,6 +92,7 @@ def draw_report_figures(
     ``jurisdiction``, each figure also gets a version to share on its own
     (title and week above it, source and caution below; see
     :mod:`sitrep.render.shared_figures`), written to ``figures/``.
+    ``on_step(done, total)`` hears of each figure drawn, for a progress display.
     """
     table = analysis.table
     order = {d: i for i, d in enumerate(districts.frame["district_id"])}
@@ -97,9 +100,17 @@ def draw_report_figures(
     geoms = districts.map_frame.geometry.iloc[index].reset_index(drop=True)
     names = list(table["district_name"])
     week = analysis.week
-    items = []
+    items: list[FigureItem] = []
+
+    def drawn(item: FigureItem) -> None:
+        items.append(item)
+        if on_step is not None:
+            on_step(len(items), _FIGURES)
+
+    if on_step is not None:
+        on_step(0, _FIGURES)
     with figure_style():
-        items.append(_trend(analysis, seasonal, digits))
+        drawn(_trend(analysis, seasonal, digits))
 
         cuts = analysis.terciles.cuts
         panels = [(f"Week {w.week}", np.asarray(ranks)) for w, ranks in analysis.recent_terciles]
@@ -111,7 +122,7 @@ def draw_report_figures(
         ranks = np.asarray(analysis.terciles.ranks)
         counts = cap.legend_counts([str(int(r)) for r in ranks], words.LEGEND_LABELS["terciles"])
         first = analysis.recent_terciles[0][0].week if analysis.recent_terciles else week.week
-        items.append(_item("terciles", *cap.tercile_caption(
+        drawn(_item("terciles", *cap.tercile_caption(
             first_week=first, week=week.week, cuts=cuts, digits=digits, counts=counts
         ), fig))
 
@@ -119,7 +130,7 @@ def draw_report_figures(
         fig = maps.change_map(geoms, classes, title=None, width_cm=8.4)
         counts = cap.legend_counts(classes, words.LEGEND_LABELS["change"])
         prior = analysis.prior_week.week if analysis.prior_week else week.week - 1
-        items.append(_item("change", *cap.change_caption(prior_week=prior, counts=counts), fig))
+        drawn(_item("change", *cap.change_caption(prior_week=prior, counts=counts), fig))
 
         cluster_labels = [str(c) for c in table["cluster_label"]]
         fig = maps.cluster_map(geoms, cluster_labels, title=None, width_cm=8.4)
@@ -129,7 +140,7 @@ def draw_report_figures(
             if members:
                 groups.append((label.value, members))
         others = cap.count_phrase(cluster_labels, ["not significant", "no neighbours", "no data", "not assessable"])
-        items.append(_item("clusters", *cap.cluster_caption(
+        drawn(_item("clusters", *cap.cluster_caption(
             variable=variable_words(analysis.settings.cluster_variable), groups=groups, others=others,
             counts=cap.legend_counts(cluster_labels, words.LEGEND_LABELS["cluster"]),
         ), fig))
@@ -140,7 +151,7 @@ def draw_report_figures(
             geoms, last, now,
             titles=(f"Week {analysis.prior_week.week if analysis.prior_week else ''} (revised)", f"Week {week.week}"),
         )
-        items.append(_item("comparison", *cap.comparison_caption(
+        drawn(_item("comparison", *cap.comparison_caption(
             last_range=_range(last[np.isfinite(last)]), now_range=_range(now[np.isfinite(now)])
         ), fig))
     if jurisdiction:
@@ -157,6 +168,10 @@ def draw_report_figures(
             ]
         ]
     return ReportFigures(tuple(items))
+
+
+_FIGURES = 5
+"""Figures :func:`draw_report_figures` draws: the trend chart and four maps."""
 
 
 def _display(value: object, suppressed: object) -> float:

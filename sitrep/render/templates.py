@@ -25,7 +25,14 @@ from sitrep.render.district_table import Cell, Column, DistrictTable, TableRow
 from sitrep.render.html import environment, packaged_template_dir
 from sitrep.render.report_figures import FigureItem
 
-__all__ = ["TEMPLATES", "Template", "context_fields", "copy_templates", "templates_markdown"]
+__all__ = [
+    "TEMPLATES",
+    "Template",
+    "context_fields",
+    "copy_templates",
+    "template_problems",
+    "templates_markdown",
+]
 
 
 @dataclasses.dataclass(frozen=True)
@@ -142,6 +149,58 @@ def context_fields(name: str, template_dir: Path | None = None) -> tuple[str, ..
             if isinstance(inc.template, jinja2.nodes.Const) and str(inc.template.value).endswith(".j2"):
                 pending.append(str(inc.template.value))
     return tuple(seen)
+
+
+def template_problems(folder: Path) -> list[tuple[str, int | None, str]]:
+    """``(file, line, message)`` for each template in an override folder that would stop a build.
+
+    Each packaged template name found in ``folder`` is parsed (not rendered):
+    a syntax error, a variable the template does not receive, or a ``c.<field>``
+    that :class:`~sitrep.render.context.ReportContext` does not have is a
+    problem. Fields of loop items (``row.<field>``) are only found by a build.
+    """
+    import jinja2.meta
+
+    fields = {f.name for f in dataclasses.fields(ReportContext)}
+    receives = {t.name: {v for v, _, _ in t.variables} for t in TEMPLATES}
+    env = environment(folder)
+    out: list[tuple[str, int | None, str]] = []
+    for t in TEMPLATES:
+        path = Path(folder) / t.name
+        if not path.is_file():
+            continue
+        try:
+            tree = env.parse(path.read_text(encoding="utf-8"), t.name, str(path))
+        except UnicodeDecodeError as exc:
+            out.append((t.name, None, f"{path} is not UTF-8 text ({exc.reason})"))
+            continue
+        except jinja2.TemplateSyntaxError as exc:
+            out.append((t.name, exc.lineno, f"{path} cannot be parsed: {exc.message}"))
+            continue
+        # names the template sets itself, even inside a branch, which Jinja2 counts as undeclared
+        stored = {n.name for n in tree.find_all(jinja2.nodes.Name) if n.ctx in ("store", "param")}
+        allowed = receives[t.included_by or t.name] | set(env.globals) | stored
+        unknown = sorted(jinja2.meta.find_undeclared_variables(tree) - allowed)
+        if unknown:
+            out.append(
+                (
+                    t.name,
+                    None,
+                    f"{path} uses {', '.join(unknown)}, which it does not receive (it receives "
+                    f"{', '.join(sorted(receives[t.included_by or t.name]))}; see docs/templates.md)",
+                )
+            )
+        for node in tree.find_all(jinja2.nodes.Getattr):
+            if isinstance(node.node, jinja2.nodes.Name) and node.node.name == "c" and node.attr not in fields:
+                out.append(
+                    (
+                        t.name,
+                        node.lineno,
+                        f"{path} line {node.lineno}: c.{node.attr} is not a value of the report "
+                        "(see docs/templates.md for the fields of c)",
+                    )
+                )
+    return out
 
 
 def copy_templates(folder: Path, *, force: bool = False) -> tuple[Path, ...]:
