@@ -161,7 +161,9 @@ def template_problems(folder: Path) -> list[tuple[str, int | None, str]]:
     """
     import jinja2.meta
 
-    fields = {f.name for f in dataclasses.fields(ReportContext)}
+    fields = {f.name for f in dataclasses.fields(ReportContext)} | {
+        n for n, v in vars(ReportContext).items() if isinstance(v, property)  # e.g. c.map_figures
+    }
     receives = {t.name: {v for v, _, _ in t.variables} for t in TEMPLATES}
     env = environment(folder)
     out: list[tuple[str, int | None, str]] = []
