@@ -199,7 +199,9 @@ class OutputSettings:
     """Archive root; bundles go to ARCHIVE/<jurisdiction>/<year>-W<ww>/v<k>/."""
     copy_inputs: bool = True
     pdf: bool = True
-    pdf_variant: str | None = None
+    pdf_variant: str | None = "pdf/ua-1"
+    """WeasyPrint's PDF variant: "pdf/ua-1" (default) writes a tagged PDF with a structure tree for
+    screen readers; "pdf/a-3b" an archival PDF with results.csv attached; "none" a plain PDF."""
     keep_suppressed_values: bool = False
     """Also write the true values of withheld districts, only into the bundle's internal file
     internal-results-UNSUPPRESSED.csv (never attached or e-mailed)."""

@@ -583,6 +583,7 @@ def _build(
             results_json,
             validation_json,
         )
+        from sitrep.render.wording.formats import fmt_week_dates
         from sitrep.versions import library_versions
 
     assert inputs.table is not None and inputs.districts is not None
@@ -640,7 +641,8 @@ def _build(
         digits = context_digits(analysis, seasonal)
         with _timed(timings, "maps", progress):
             figures = draw_report_figures(
-                analysis, seasonal, inputs.districts, digits=digits, on_step=_stepper(progress, "maps")
+                analysis, seasonal, inputs.districts, digits=digits, on_step=_stepper(progress, "maps"),
+                jurisdiction=config.report.jurisdiction, week_dates=fmt_week_dates(week.start, week.end),
             )
         with _timed(timings, "html", progress):
             context = build_context(
@@ -663,12 +665,14 @@ def _build(
         if worker is not None:
             # The PDF renders in the worker process while drafts and results are made here.
             with _timed(timings, "pdf"):
+                variant = config.output.pdf_variant if config.output.pdf_variant != "none" else None
                 worker.start(
                     pdf_html,
                     asset_dir=asset_dir(),
-                    pdf_variant=config.output.pdf_variant,
+                    pdf_variant=variant,
+                    # PDF/A-3 allows any attached file; the other variants get none
                     attachments=(("results.csv", results_csv(analysis, config.analysis, jurisdiction=name)),)
-                    if config.output.pdf_variant
+                    if variant and variant.startswith("pdf/a-3")
                     else (),
                 )
         with _timed(timings, "drafts", progress):

@@ -1,11 +1,12 @@
-/* Sort the district table by a column when its heading is clicked (no data is read from the page's text into HTML). */
+/* Sort the district table by a column when its heading is clicked. Each cell carries its position in
+   the column's natural order (data-order: ids in natural order, terciles low-middle-high, numbers by value),
+   so nothing is read from the page's text. */
 (function () {
   var table = document.getElementById("district-table");
   if (!table) { return; }
   var heads = table.tHead.rows[0].cells;
   Array.prototype.forEach.call(heads, function (th, index) {
-    var kind = th.getAttribute("data-sort");
-    if (!kind) { return; }
+    if (!th.hasAttribute("data-sort")) { return; }
     th.tabIndex = 0;
     th.setAttribute("aria-sort", "none");
     var sort = function () {
@@ -13,15 +14,9 @@
       var rows = Array.prototype.slice.call(body.rows);
       var ascending = th.getAttribute("aria-sort") !== "ascending";
       rows.sort(function (a, b) {
-        var x = a.cells[index].textContent.trim(), y = b.cells[index].textContent.trim();
-        if (kind === "num") {
-          var fx = parseFloat(x.replace(/[^0-9.\u2212+-]/g, "").replace("\u2212", "-"));
-          var fy = parseFloat(y.replace(/[^0-9.\u2212+-]/g, "").replace("\u2212", "-"));
-          if (isNaN(fx)) { fx = -Infinity; }
-          if (isNaN(fy)) { fy = -Infinity; }
-          return ascending ? fx - fy : fy - fx;
-        }
-        return ascending ? x.localeCompare(y) : y.localeCompare(x);
+        var x = parseInt(a.cells[index].getAttribute("data-order"), 10);
+        var y = parseInt(b.cells[index].getAttribute("data-order"), 10);
+        return ascending ? x - y : y - x;
       });
       rows.forEach(function (row) { body.appendChild(row); });
       Array.prototype.forEach.call(heads, function (h) { if (h.hasAttribute("data-sort")) { h.setAttribute("aria-sort", "none"); } });

@@ -163,7 +163,7 @@ def test_h02_a_district_without_a_row_is_kept_and_labelled_not_reported(tmp_path
     row = next(r for r in result.context.districts if r.district_id == "002")
     assert (row.ili_pct, row.total_visits, row.notes) == ("no data", "—", "not reported this week")
     alts = {f.key: f.alt for f in result.context.figures}
-    assert "1 district no data" in alts["terciles"] and "1 district no data" in alts["clusters"]
+    assert "no data / suppressed 1" in alts["terciles"] and "1 district no data" in alts["clusters"]
     csv_row = next(r for r in csv.DictReader(io.StringIO(read_outputs(result)["results.csv"].decode("utf-8-sig")))
                    if r["district_id"] == "002")
     assert csv_row["total_visits"] == "" and csv_row["ili_percent"] == ""

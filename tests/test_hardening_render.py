@@ -454,14 +454,21 @@ def test_h19_empty_source_date_epoch_is_rejected_clearly(monkeypatch: pytest.Mon
 def test_h24_no_output_claims_pdf_a_without_a_validator(
     hostile: types.SimpleNamespace, glyphs: types.SimpleNamespace
 ) -> None:
-    """No veraPDF here: with the default configuration nothing may say PDF/A (docs/faults.md F24, L5)."""
+    """No veraPDF here: with the default configuration nothing may say PDF/A (docs/faults.md F24, L5).
+
+    The default variant is WeasyPrint's tagged PDF/UA-1, whose metadata names only that part.
+    """
     assert shutil.which("verapdf") is None  # if a validator appears, this test must be revisited
     for run in (hostile, glyphs):
-        assert run.week.config().output.pdf_variant is None
+        assert run.week.config().output.pdf_variant == "pdf/ua-1"
         for name, data in run.out.items():
             assert b"PDF/A" not in data and b"pdfaid" not in data, name
-        assert "PDF/A" not in run.pdf_text
-        assert pypdf.PdfReader(io.BytesIO(run.out["report.pdf"])).xmp_metadata is None
+        assert "PDF/A" not in run.pdf_text and "PDF/UA" not in run.pdf_text
+        xmp = pypdf.PdfReader(io.BytesIO(run.out["report.pdf"])).xmp_metadata
+        assert xmp is not None
+        # XMP PDF/UA identification schema (ISO 14289-1 §5): part 1, and no PDF/A part
+        data = xmp.stream.get_data()
+        assert b'pdfuaid:part="1"' in data and b"pdfaid" not in data
     # the glyph week carries no hostile text: its reader-facing outputs hold no placeholder
     for name in ("draft.md", "email.txt"):
         assert not FORBIDDEN.search(glyphs.out[name].decode("utf-8")), name

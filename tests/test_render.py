@@ -77,12 +77,20 @@ def test_every_figure_has_alt_text_from_the_numbers(demo_build) -> None:  # type
     assert set(figures) == {"trend", "terciles", "change", "clusters", "comparison"}
     table = result.analysis.table
     n_increase = int((table["change_class"] == "increase").sum())
-    assert f"{n_increase} district{'s' if n_increase != 1 else ''} increase" in figures["change"].alt
+    assert f"clear increase {n_increase}" in figures["change"].alt  # legend words, with the count
+    assert f"clear increase {n_increase}" in figures["change"].caption  # the legend has no counts
     cuts = result.analysis.terciles.cuts
     alt = figures["terciles"].alt
     assert any(f"{cuts[0]:.{d}f}%" in alt and f"{cuts[1]:.{d}f}%" in alt for d in (1, 2, 3))
     for figure in figures.values():
         assert figure.svg.startswith(b"<?xml") and figure.png.startswith(b"\x89PNG")
+        # the version shared on its own names the figure, the week and the source, with a caution
+        shared = figure.shared_svg.decode("utf-8")
+        assert f"{figure.title} — week 47, 2026" in shared.replace("&amp;", "&")
+        assert "Source: Province of Quillmarsh" in shared and "Provisional data" in shared
+        assert figure.shared_png.startswith(b"\x89PNG") and len(figure.shared_png) > len(figure.png)
+        written = next(p for p in result.outputs if p.name == f"{figure.key}.svg")
+        assert written.read_bytes() == figure.shared_svg
 
 
 @pytest.mark.slow

@@ -20,6 +20,7 @@ from matplotlib.ticker import MaxNLocator
 from sitrep.errors import RenderError
 from sitrep.render.figures import figure_style, freeze_layout, new_figure
 from sitrep.render.palette import COLOURS, LINE_COLOURS, TEXT_COLOURS
+from sitrep.render.wording import labels as words
 
 __all__ = [
     "MAX_NAME_CHARS",
@@ -99,9 +100,11 @@ def trend_chart(
     thresholds: Mapping[str, float] | None,
     week_labels: Sequence[str] | None = None,
     season_start_week: int | None = None,
-    current_label: str = "This season",
-    y_label: str = "ILI (% of outpatient visits)",
+    current_label: str = words.THIS_SEASON,
+    y_label: str = words.TREND_Y_LABEL,
     x_label: str | None = None,
+    value_digits: int = 1,
+    max_ticks: int = 13,
     width_cm: float = 17.0,
     height_cm: float = 8.5,
 ) -> Figure:
@@ -115,7 +118,10 @@ def trend_chart(
     the right edge with their name and value ("Baseline 1.3%"); labels that
     would overlap are moved apart (:func:`spread_labels`) and joined to
     their line by a short leader. The y axis starts at 0 and reaches 10 %
-    above the highest line or value. The legend sits below the plot.
+    above the highest line or value. The legend sits below the plot. Line
+    labels print their value with ``value_digits`` decimals
+    (:func:`sitrep.render.wording.labels.line_label`), the precision the
+    report's text gives thresholds.
 
     Parameters
     ----------
@@ -132,9 +138,10 @@ def trend_chart(
     thresholds : mapping of str to float, or None
         Threshold name (e.g. "Epidemic threshold") to ILI%; up to 4.
     week_labels : sequence of str, optional
-        Tick label of season-weeks 1, 2, ... (e.g. the epi week numbers of
-        the current season, from :mod:`sitrep.weeks`); must cover every
-        season-week on the axis. The axis is then titled "Epi week".
+        Tick label of season-weeks 1, 2, ... (e.g. this season's week-ending
+        dates, :func:`sitrep.render.wording.labels.week_ending_tick`); must
+        cover every season-week on the axis. The axis is then titled "Epi
+        week" unless ``x_label`` says otherwise.
     season_start_week : int, optional
         Without ``week_labels``: ticks show season-week numbers and the axis
         title says which epi week is season-week 1 ("Week of season (week 1
@@ -143,6 +150,10 @@ def trend_chart(
     current_label, y_label, x_label : str
         Legend entry of this season and axis titles (``x_label`` overrides
         the default x-axis title).
+    value_digits : int
+        Decimals of the baseline and threshold values in their labels.
+    max_ticks : int
+        Most x-axis tick labels (fewer for long labels such as dates).
     width_cm, height_cm : float
 
     Returns
@@ -187,7 +198,7 @@ def trend_chart(
     lines: list[tuple[str, float, str, str]] = []  # name, value, colour, line style
     text_keys: list[str] = []  # TEXT_COLOURS key of each line's label
     if baseline is not None:
-        lines.append(("Baseline", float(baseline), LINE_COLOURS["baseline"], "--"))
+        lines.append((words.BASELINE, float(baseline), LINE_COLOURS["baseline"], "--"))
         text_keys.append("baseline_label")
     items = list((thresholds or {}).items())
     if len(items) > 4:
@@ -239,19 +250,18 @@ def trend_chart(
         ax.set_ylim(0, y_max)
         ax.yaxis.set_major_locator(MaxNLocator(nbins=6, steps=[1, 2, 2.5, 5, 10]))
         ax.yaxis.set_major_formatter(lambda v, _pos: f"{v:g}")
-        step = max(1, math.ceil(n / 13))
+        step = max(1, math.ceil(n / max(1, max_ticks)))
         ticks = list(range(1, n + 1, step))
         ax.set_xticks(ticks)
         ax.set_xticklabels(
             [str(week_labels[t - 1]) if week_labels is not None else str(t) for t in ticks]
         )
         if x_label is None:
-            if week_labels is not None:
-                x_label = "Epi week"
-            elif season_start_week is not None:
-                x_label = f"Week of season (week 1 = epi week {season_start_week})"
-            else:
-                x_label = "Week of season"
+            x_label = (
+                words.EPI_WEEK
+                if week_labels is not None
+                else words.trend_x_label(dates=False, season_start_week=season_start_week)
+            )
         ax.set_xlabel(x_label)
         ax.set_ylabel(y_label)
         ax.grid(axis="y", color="#E6E6E6", linewidth=0.6, zorder=0)
@@ -275,7 +285,7 @@ def trend_chart(
             ax.text(
                 1.015,
                 value / y_max,
-                f"{name} {_percent(value)}",
+                words.line_label(name, value, value_digits),
                 transform=ax.transAxes,
                 ha="left",
                 va="center",
@@ -320,7 +330,7 @@ def district_bar_chart(
     lows: FloatArray,
     highs: FloatArray,
     *,
-    x_label: str = "ILI (% of outpatient visits)",
+    x_label: str = words.BAR_X_LABEL,
     interval_label: str = "95% CI",
     width_cm: float = 17.0,
 ) -> Figure:

@@ -17,20 +17,24 @@ from sitrep.analysis.seasonal_context import SeasonalContext
 from sitrep.analysis.week import WeekAnalysis
 from sitrep.config import Config
 from sitrep.model import InputFile, ValidationReport
+from sitrep.render.district_table import DistrictTable, district_table
 from sitrep.render.report_figures import FigureItem, ReportFigures
 from sitrep.render.wording import formats as fm
 from sitrep.render.wording import methods as mt
 from sitrep.render.wording import plain as pl
 from sitrep.render.wording import sentences as nv
+from sitrep.render.wording import tiles as tl
 from sitrep.render.wording.mail import ATTACHED
 from sitrep.render.wording.sentences import PRIOR_WITHHELD_NOTE, WITHHELD_NOTE, WITHHELD_TOTAL
 
 __all__ = [
     "DistrictRow",
+    "DistrictTable",
     "FigureItem",
     "IndicatorRow",
     "QualityItem",
     "ReportContext",
+    "Tile",
     "build_context",
 ]
 
@@ -42,6 +46,15 @@ class IndicatorRow:
     label: str
     value: str
     note: str = ""
+
+
+@dataclasses.dataclass(frozen=True)
+class Tile:
+    """One headline box of page 1."""
+
+    label: str
+    value: str
+    note: str
 
 
 @dataclasses.dataclass(frozen=True)
@@ -125,20 +138,32 @@ class ReportContext:
     attached_note: str = ATTACHED
     build_time: str = ""
     """ISO 8601 UTC time of the build (from SOURCE_DATE_EPOCH when set), for file properties."""
+    tiles: tuple[Tile, ...] = ()
+    """The headline boxes of page 1."""
+    district_table: DistrictTable = DistrictTable((), (), ())
+    """All districts, as the HTML report shows them (ids in natural order)."""
+    district_table_pdf: DistrictTable = DistrictTable((), (), ())
+    """The PDF's districts (highest ILI% first)."""
     disclosure_note: str = ""
     """How many districts are withheld to protect small counts (empty when none)."""
     named_district_ids: tuple[str, ...] = ()
     """Every district page 1 names (top third, high-value groups, groups gained or lost), by id:
     the districts whose data-quality warnings hold a bundle for review."""
 
+    @property
+    def trend_figures(self) -> tuple[FigureItem, ...]:
+        """The trend chart (page 1)."""
+        return tuple(f for f in self.figures if f.key == "trend")
+
+    @property
+    def map_figures(self) -> tuple[FigureItem, ...]:
+        """Every figure but the trend chart, in display order (the maps)."""
+        return tuple(f for f in self.figures if f.key != "trend")
+
 
 
 def _month_range(start: Any, end: Any) -> str:
-    if start.year != end.year:
-        return f"{start.day} {start:%B %Y} to {end.day} {end:%B %Y}"
-    if start.month != end.month:
-        return f"{start.day} {start:%B} to {end.day} {end:%B %Y}"
-    return f"{start.day}–{end.day} {end:%B %Y}"
+    return fm.fmt_week_dates(start, end)
 
 
 def _f(x: Any) -> float:
@@ -421,6 +446,42 @@ def build_context(
         ("About the figures", draft_messages[4] + (" " + disclosure_note if disclosure_note else "")),
     )
     report_version = str(version) if version is not None else config.report.version
+    n_high = sum(1 for lab in table["cluster_label"] if lab == "high-high")
+    n_low = sum(1 for lab in table["cluster_label"] if lab == "low-low")
+    tiles = [
+        tl.level_tile(pct=j.ili_percent, low=j.ci_low, high=j.ci_high, confidence=conf, digits=digits),
+        tl.change_tile(
+            prior_week=prior.week if prior is not None else week.week - 1,
+            diff_pp=j.change_pp,
+            verdict=verdict,
+            rising_for=rising_for,
+        ),
+        tl.season_tile(
+            intensity=seasonal.intensity,
+            threshold=seasonal.epidemic_threshold if seasonal.thresholds_available else None,
+            digits=digits,
+            unsettled=unsettled,
+        ),
+    ]
+    shown_pct = [r.sort_pct for r in district_rows if not r.suppressed and not math.isnan(r.sort_pct)]
+    if seasonal.thresholds_available and seasonal.epidemic_threshold is not None:
+        tiles.append(
+            tl.over_threshold_tile(
+                n_over=sum(1 for v in shown_pct if v >= seasonal.epidemic_threshold),
+                n_with_data=len(shown_pct),
+                threshold=seasonal.epidemic_threshold,
+                digits=digits,
+            )
+        )
+    tiles.append(
+        tl.reporting_tile(
+            n_reporting=j.n_districts_reporting,
+            n_total=j.n_districts_total,
+            sites=j.reporting_sites if math.isfinite(_f(j.reporting_sites)) else None,
+        )
+    )
+    tiles.append(tl.cluster_tile(assessable=assessable, n_high=n_high, n_low=n_low))
+    conf_label = fm.confidence_label(conf)
     return ReportContext(
         title=config.report.title,
         jurisdiction=config.report.jurisdiction,
@@ -472,6 +533,11 @@ def build_context(
         draft_key_messages=draft_messages,
         ci_heading=f"{fm.confidence_label(conf)} CI",
         build_time=build_time,
+        tiles=tuple(Tile(*t) for t in tiles),
+        district_table=district_table(district_rows, confidence_label=conf_label, min_visits=a.min_visits),
+        district_table_pdf=district_table(
+            top, confidence_label=conf_label, order="given", min_visits=a.min_visits
+        ),
         disclosure_note=disclosure_note,
         named_district_ids=tuple(sorted(named_ids)),
     )

@@ -54,7 +54,6 @@ from matplotlib.patches import Patch
 from matplotlib.path import Path
 
 from sitrep.errors import RenderError
-from sitrep.model import ChangeClass, ClusterLabel
 from sitrep.render.figures import CM, figure_style, freeze_layout, new_figure
 from sitrep.render.palette import (
     CHANGE_STYLES,
@@ -65,6 +64,7 @@ from sitrep.render.palette import (
     TERCILE_STYLES,
     FillStyle,
 )
+from sitrep.render.wording.labels import LEGEND_LABELS
 
 __all__ = [
     "LEGEND_LABELS",
@@ -102,43 +102,6 @@ _RASTER_ZORDER = 0.5
 _CACHE_SIZE = 4
 _CACHE: collections.OrderedDict[tuple[str, str], _MapGeometry] = collections.OrderedDict()
 _CACHE_LOCK = threading.Lock()
-
-LEGEND_LABELS: dict[str, dict[str, str]] = {
-    "terciles": {
-        "1": "Lowest third",
-        "2": "Middle third",
-        "3": "Highest third",
-        "0": "No data / suppressed",
-    },
-    "change": {
-        ChangeClass.INCREASE.value: "Clear increase",
-        ChangeClass.SIMILAR.value: "No clear or only a small change",
-        ChangeClass.DECREASE.value: "Clear decrease",
-        ChangeClass.NOT_ASSESSABLE.value: "Not assessable",
-    },
-    "cluster": {
-        ClusterLabel.HIGH_HIGH.value: "High cluster (high-high)",
-        ClusterLabel.LOW_LOW.value: "Low cluster (low-low)",
-        ClusterLabel.HIGH_LOW.value: "High among low (high-low)",
-        ClusterLabel.LOW_HIGH.value: "Low among high (low-high)",
-        ClusterLabel.NOT_SIGNIFICANT.value: "Not significant",
-        ClusterLabel.NO_NEIGHBOURS.value: "No neighbours (not tested)",
-        ClusterLabel.NO_DATA.value: "No data / suppressed",
-        ClusterLabel.NOT_ASSESSABLE.value: "Not assessable",
-    },
-    "comparison": {
-        "scale": "ILI (% of outpatient visits)",
-        "no data": "No data / suppressed",
-    },
-}
-"""Legend words per map and class, in legend order.
-
-``terciles`` holds the word stems; the printed tercile labels (with cut
-points) come from :func:`tercile_labels`. Keys of ``change`` and ``cluster``
-are the :class:`~sitrep.model.ChangeClass` and
-:class:`~sitrep.model.ClusterLabel` values. The change and cluster legends
-add the number of districts in each class, e.g. "Clear increase (4)".
-"""
 
 _MAX_PANELS = 8
 _MARGIN = 0.02  # share of the extent's larger side added on each side
@@ -487,10 +450,6 @@ def _values(items: Sequence[Any], n: int, what: str, allowed: Sequence[str]) -> 
     return out
 
 
-def _counted(label: str, count: int) -> str:
-    return f"{label} ({count})"
-
-
 # --------------------------------------------------------------------------- public maps
 
 
@@ -568,7 +527,8 @@ def tercile_small_multiples(
     or suppressed, hatched; 1..3 lowest to highest third) with the sand ->
     amber -> plum ramp. All panels use the same rank colours and one legend
     whose labels print ``cuts`` (see :func:`tercile_labels`), so the caller
-    must rank every week against the same cut points. Panels run left to
+    must rank every week against the same cut points; a rank that no panel
+    has is left out of the legend. Panels run left to
     right in the order given; up to 4 panels go in one row when the region
     is at least about as wide as tall, otherwise in rows of 2. The first
     panel carries the scale bar and north arrow.
@@ -633,7 +593,8 @@ def tercile_small_multiples(
             _draw_classes(ax, geometry, ranks_per_panel[k], TERCILE_STYLES)
             _frame(ax, geometry, panel, furniture=(k == 0))
             ax.set_title(panels[k][0], fontsize=8.5)
-        handles = [_handle(TERCILE_STYLES[r], labels[r]) for r in (1, 2, 3, 0)]
+        present = {r for ranks in ranks_per_panel for r in ranks}
+        handles = [_handle(TERCILE_STYLES[r], labels[r]) for r in (1, 2, 3, 0) if r in present]
         legend = _figure_legend(fig, handles, max_cols=4)
         _fit_height(fig, nrows * (panel.height_cm + _TITLE_CM), legend)
         freeze_layout(fig)
@@ -661,7 +622,7 @@ def _single_class_map(
         _frame(ax, geometry, panel, furniture=True)
         if title:
             ax.set_title(title, fontsize=9)
-        handles = [_handle(styles[key], _counted(words[key], classes.count(key))) for key in words]
+        handles = [_handle(styles[key], words[key]) for key in words if key in classes]
         legend = _figure_legend(fig, handles, max_cols=4)
         _fit_height(fig, maps_cm, legend)
         freeze_layout(fig)
@@ -679,7 +640,7 @@ def change_map(
 
     Fills: increase rust, similar linen, decrease sea-green with horizontal
     stripes, not assessable white with diagonal hatching. The legend names
-    each class in words with its number of districts, e.g. "Clear increase (4)".
+    in words each class that has districts (the caption gives the counts).
 
     Parameters
     ----------
@@ -724,9 +685,8 @@ def cluster_map(
     high-low apricot with rust hatching and outline, low-high mist with
     dots, not significant fog grey, no neighbours white with a dotted
     outline, no data white with diagonal hatching, not assessable white with
-    cross-hatching. Every label is in the legend, named in words with its
-    number of districts, whether or not it occurs this week, so the legend
-    is the same every week.
+    cross-hatching. The legend names in words each label that has districts
+    this week (the caption gives the counts).
 
     Parameters
     ----------
@@ -877,12 +837,13 @@ def comparison_map(
         colourbar.outline.set_edgecolor(COLOURS["slate"])
         key_ax = fig.add_subplot(grid[1, 1])
         key_ax.set_axis_off()
-        key_ax.legend(
-            handles=[_handle(NO_DATA_STYLE, suppressed_label)],
-            loc="center left",
-            frameon=False,
-            handlelength=1.6,
-            handleheight=1.2,
-        )
+        if any(np.isnan(w).any() for w in weeks):  # the no-data key only when a district has none
+            key_ax.legend(
+                handles=[_handle(NO_DATA_STYLE, suppressed_label)],
+                loc="center left",
+                frameon=False,
+                handlelength=1.6,
+                handleheight=1.2,
+            )
         freeze_layout(fig)
     return fig

@@ -20,7 +20,9 @@ from sitrep.analysis.week import WeekAnalysis
 from sitrep.model import ClusterLabel, Districts
 from sitrep.render import charts, maps
 from sitrep.render.figures import figure_style, figure_to_png, figure_to_svg
+from sitrep.render.shared_figures import framed_png, framed_svg
 from sitrep.render.wording import captions as cap
+from sitrep.render.wording import labels as words
 from sitrep.render.wording.methods import variable_words
 
 __all__ = ["FigureItem", "ReportFigures", "draw_report_figures"]
@@ -38,6 +40,9 @@ class FigureItem:
     png_data_uri: str
     svg: bytes = dataclasses.field(repr=False, default=b"")
     png: bytes = dataclasses.field(repr=False, default=b"")
+    shared_svg: bytes = dataclasses.field(repr=False, default=b"")
+    """The figure as shared on its own: title and week above, source and caution below."""
+    shared_png: bytes = dataclasses.field(repr=False, default=b"")
 
 
 @dataclasses.dataclass(frozen=True)
@@ -47,11 +52,11 @@ class ReportFigures:
     items: tuple[FigureItem, ...]
 
     def files(self) -> dict[str, bytes]:
-        """``{name: bytes}`` for the output folder's figures/ subfolder."""
+        """``{name: bytes}`` for the output folder's figures/ subfolder (the versions shared on their own)."""
         out: dict[str, bytes] = {}
         for item in self.items:
-            out[f"{item.key}.svg"] = item.svg
-            out[f"{item.key}.png"] = item.png
+            out[f"{item.key}.svg"] = item.shared_svg or item.svg
+            out[f"{item.key}.png"] = item.shared_png or item.png
         return out
 
 
@@ -76,13 +81,18 @@ def draw_report_figures(
     districts: Districts,
     *,
     digits: int = 1,
+    jurisdiction: str = "",
+    week_dates: str = "",
     on_step: Callable[[int, int], None] | None = None,
 ) -> ReportFigures:
     """Draw the trend chart and the four maps of the report.
 
-    ``digits`` prints the tercile cut points (see
-    :func:`sitrep.render.wording.formats.class_digits`); ``on_step(done,
-    total)`` hears of each figure drawn, for a progress display.
+    ``digits`` prints the tercile cut points and the trend chart's threshold
+    values (see :func:`sitrep.render.wording.formats.class_digits`). With a
+    ``jurisdiction``, each figure also gets a version to share on its own
+    (title and week above it, source and caution below; see
+    :mod:`sitrep.render.shared_figures`), written to ``figures/``.
+    ``on_step(done, total)`` hears of each figure drawn, for a progress display.
     """
     table = analysis.table
     order = {d: i for i, d in enumerate(districts.frame["district_id"])}
@@ -100,18 +110,17 @@ def draw_report_figures(
     if on_step is not None:
         on_step(0, _FIGURES)
     with figure_style():
-        drawn(_trend(analysis, seasonal))
+        drawn(_trend(analysis, seasonal, digits))
 
         cuts = analysis.terciles.cuts
         panels = [(f"Week {w.week}", np.asarray(ranks)) for w, ranks in analysis.recent_terciles]
         if not panels:  # no cut points this week (e.g. every district withheld): one empty panel
             panels = [(f"Week {week.week}", np.asarray(analysis.terciles.ranks))]
         fig = maps.tercile_small_multiples(
-            geoms, panels, cuts, suppressed_label="no data or suppressed", decimals=digits
+            geoms, panels, cuts, suppressed_label=words.LEGEND_LABELS["terciles"]["0"], decimals=digits
         )
         ranks = np.asarray(analysis.terciles.ranks)
-        labels = {0: "no data", 1: "low", 2: "middle", 3: "high"}
-        counts = cap.count_phrase([labels[int(r)] for r in ranks], ["low", "middle", "high", "no data"])
+        counts = cap.legend_counts([str(int(r)) for r in ranks], words.LEGEND_LABELS["terciles"])
         first = analysis.recent_terciles[0][0].week if analysis.recent_terciles else week.week
         drawn(_item("terciles", *cap.tercile_caption(
             first_week=first, week=week.week, cuts=cuts, digits=digits, counts=counts
@@ -119,7 +128,7 @@ def draw_report_figures(
 
         classes = [str(c) for c in table["change_class"]]
         fig = maps.change_map(geoms, classes, title=None, width_cm=8.4)
-        counts = cap.count_phrase(classes, ["increase", "decrease", "similar", "not assessable"])
+        counts = cap.legend_counts(classes, words.LEGEND_LABELS["change"])
         prior = analysis.prior_week.week if analysis.prior_week else week.week - 1
         drawn(_item("change", *cap.change_caption(prior_week=prior, counts=counts), fig))
 
@@ -132,7 +141,8 @@ def draw_report_figures(
                 groups.append((label.value, members))
         others = cap.count_phrase(cluster_labels, ["not significant", "no neighbours", "no data", "not assessable"])
         drawn(_item("clusters", *cap.cluster_caption(
-            variable=variable_words(analysis.settings.cluster_variable), groups=groups, others=others
+            variable=variable_words(analysis.settings.cluster_variable), groups=groups, others=others,
+            counts=cap.legend_counts(cluster_labels, words.LEGEND_LABELS["cluster"]),
         ), fig))
 
         last = np.array([_display(v, s) for v, s in zip(table["prior_ili_percent"], table["suppressed"], strict=True)])
@@ -144,6 +154,19 @@ def draw_report_figures(
         drawn(_item("comparison", *cap.comparison_caption(
             last_range=_range(last[np.isfinite(last)]), now_range=_range(now[np.isfinite(now)])
         ), fig))
+    if jurisdiction:
+        footer = cap.source_line(jurisdiction=jurisdiction)
+        items = [
+            dataclasses.replace(
+                item,
+                shared_svg=framed_svg(item.svg, title=heading, footer=footer),
+                shared_png=framed_png(item.png, title=heading, footer=footer),
+            )
+            for item in items
+            for heading in [
+                cap.shared_title(title=item.title, week_number=week.week, week_year=week.year, dates=week_dates)
+            ]
+        ]
     return ReportFigures(tuple(items))
 
 
@@ -165,19 +188,25 @@ def _range(values: np.ndarray) -> str:
     return cap.value_range(float(values.min()), float(values.max()))
 
 
-def _trend(analysis: WeekAnalysis, seasonal: SeasonalContext) -> FigureItem:
+def _trend(analysis: WeekAnalysis, seasonal: SeasonalContext, digits: int) -> FigureItem:
     weeks = [w for w, _ in seasonal.current_curve]
     current = np.array([v for _, v in seasonal.current_curve], dtype=float)
     past = [(label, np.array(values, dtype=float)) for label, values in seasonal.past_curves]
     thresholds = {}
     if seasonal.thresholds_available:
-        for name, value in (("epidemic threshold", seasonal.epidemic_threshold), ("medium", seasonal.medium),
-                            ("high", seasonal.high), ("very high", seasonal.very_high)):
+        for key, value in (("epidemic", seasonal.epidemic_threshold), ("medium", seasonal.medium),
+                           ("high", seasonal.high), ("very_high", seasonal.very_high)):
             if value is not None:
-                thresholds[name] = float(value)
+                thresholds[words.THRESHOLD_NAMES[key]] = float(value)
+    # Tick labels: this season's week-ending dates (past seasons are aligned by week of the season).
+    n = max([len(weeks) and max(weeks), *(len(v) for _, v in past)])
+    start = analysis.week - (seasonal.season_week - 1)
+    ends = [(start + k).end for k in range(n)]
+    ticks = [words.week_ending_tick(day, with_year=False) for day in ends]
     fig = charts.trend_chart(
         weeks, current, past, baseline=seasonal.baseline, thresholds=thresholds or None,
-        season_start_week=_season_start(analysis, seasonal),
+        week_labels=ticks, x_label=words.trend_x_label(dates=True, season=seasonal.season_label),
+        value_digits=digits, max_ticks=9, height_cm=6.0,
     )
     peaks = [float(np.nanmax(v)) for _, v in past if np.isfinite(v).any()]
     now = float(current[-1]) if current.size else math.nan
@@ -188,9 +217,5 @@ def _trend(analysis: WeekAnalysis, seasonal: SeasonalContext) -> FigureItem:
         past_peaks=peaks,
         threshold=seasonal.epidemic_threshold if seasonal.thresholds_available else None,
         baseline=seasonal.baseline,
+        digits=digits,
     ), fig)
-
-
-def _season_start(analysis: WeekAnalysis, seasonal: SeasonalContext) -> int:
-    start = analysis.week - (seasonal.season_week - 1)
-    return start.week

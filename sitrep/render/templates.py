@@ -20,7 +20,8 @@ import jinja2
 import jinja2.nodes
 
 from sitrep.errors import ConfigError
-from sitrep.render.context import DistrictRow, IndicatorRow, QualityItem, ReportContext
+from sitrep.render.context import DistrictRow, IndicatorRow, QualityItem, ReportContext, Tile
+from sitrep.render.district_table import Cell, Column, DistrictTable, TableRow
 from sitrep.render.html import environment, packaged_template_dir
 from sitrep.render.report_figures import FigureItem
 
@@ -107,6 +108,13 @@ _ROWS = {
     "quality": QualityItem,
     "quality_pdf": QualityItem,
     "figures": FigureItem,
+    "trend_figures": FigureItem,
+    "map_figures": FigureItem,
+    "tiles": Tile,
+    "district_table": DistrictTable,
+    "district_table.columns": Column,
+    "district_table.rows": TableRow,
+    "district_table.rows[].cells": Cell,
 }
 """Context fields holding rows: their item type, whose fields a loop can use."""
 
@@ -153,7 +161,9 @@ def template_problems(folder: Path) -> list[tuple[str, int | None, str]]:
     """
     import jinja2.meta
 
-    fields = {f.name for f in dataclasses.fields(ReportContext)}
+    fields = {f.name for f in dataclasses.fields(ReportContext)} | {
+        n for n, v in vars(ReportContext).items() if isinstance(v, property)  # e.g. c.map_figures
+    }
     receives = {t.name: {v for v, _, _ in t.variables} for t in TEMPLATES}
     env = environment(folder)
     out: list[tuple[str, int | None, str]] = []
@@ -234,6 +244,14 @@ def _type(annotation: object) -> str:
     return str(annotation).replace("typing.", "")
 
 
+def _field_type(fields: dict[str, dataclasses.Field[object]], name: str) -> str:
+    """The type of a context field, or the return type of a context property (e.g. ``map_figures``)."""
+    if name in fields:
+        return _type(fields[name].type)
+    prop = getattr(ReportContext, name)
+    return _type(prop.fget.__annotations__.get("return", "")) + " (property)"
+
+
 def templates_markdown() -> str:
     """The generated part of docs/templates.md: each template, its variables and the fields it uses."""
     fields = {f.name: f for f in dataclasses.fields(ReportContext)}
@@ -252,15 +270,21 @@ def templates_markdown() -> str:
             continue
         used = context_fields(t.name)
         out += ["", "Fields of `c` the packaged template uses:", "", "| field | type |", "| --- | --- |"]
-        out += [f"| `c.{n}` | `{_type(fields[n].type)}` |" for n in used]
+        out += [f"| `c.{n}` | `{_field_type(fields, n)}` |" for n in used]
         out.append("")
     out += ["## Every field of `c` (ReportContext)", "", "| field | type |", "| --- | --- |"]
     out += [f"| `{f.name}` | `{_type(f.type)}` |" for f in dataclasses.fields(ReportContext)]
+    out += [
+        f"| `{n}` | `{_field_type({}, n)}` |"
+        for n, v in vars(ReportContext).items()
+        if isinstance(v, property)
+    ]
     out.append("")
     for field, row in _ROWS.items():
         if not dataclasses.is_dataclass(row):  # pragma: no cover - every row type is a dataclass
             continue
         members = ", ".join(f"`{f.name}`" for f in dataclasses.fields(row))
-        out.append(f"- each item of `c.{field}` (`{row.__name__}`) has {members}")
+        kind = "" if field == "district_table" else "each item of "
+        out.append(f"- {kind}`c.{field}` (`{row.__name__}`) has {members}")
     out.append("")
     return "\n".join(out)

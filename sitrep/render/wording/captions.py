@@ -3,11 +3,14 @@
 from __future__ import annotations
 
 from collections import Counter
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
 
 from sitrep.render.wording.formats import fmt_pct, join_names, plural
 
 __all__ = [
+    "legend_counts",
+    "shared_title",
+    "source_line",
     "change_caption",
     "cluster_caption",
     "comparison_caption",
@@ -23,6 +26,30 @@ def count_phrase(values: Sequence[str], order: Sequence[str]) -> str:
     return ", ".join(plural(counts[v], "district") + f" {v}" for v in order if counts[v])
 
 
+def legend_counts(values: Sequence[str], words: Mapping[str, str]) -> str:
+    """The districts per legend class, in legend order, empty classes left out (the legends hide them).
+
+    >>> legend_counts(["a", "b", "a"], {"a": "Clear increase", "b": "Not assessable", "c": "Clear decrease"})
+    'clear increase 2, not assessable 1 (3 districts)'
+    """
+    counts = Counter(values)
+    listed = ", ".join(f"{word[:1].lower() + word[1:]} {counts[key]}" for key, word in words.items() if counts[key])
+    return f"{listed} ({plural(len(values), 'district')})" if listed else "no districts"
+
+
+def shared_title(*, title: str, week_number: int, week_year: int, dates: str) -> str:
+    """Title of a figure shared on its own: ``'Change since week 46 — week 47, 2026 (22–28 November 2026)'``."""
+    return f"{title} — week {week_number}, {week_year} ({dates})"
+
+
+def source_line(*, jurisdiction: str) -> str:
+    """The source and caution printed under a figure shared on its own."""
+    return (
+        f"Source: {jurisdiction}, influenza-like illness (ILI) sentinel surveillance. Provisional data: recent "
+        "weeks may rise as late reports arrive. ILI is a syndrome, not confirmed influenza."
+    )
+
+
 def tercile_caption(
     *, first_week: int, week: int, cuts: tuple[float, float] | None, digits: int, counts: str
 ) -> tuple[str, str, str]:
@@ -35,7 +62,8 @@ def tercile_caption(
     return (
         f"ILI% terciles, weeks {first_week} to {week}",
         f"Each district's ILI% in thirds, on this week's {cut_text} for every panel "
-        "(a value equal to a cut point is in the lower third). Hatched districts had no data or too few visits.",
+        "(a value equal to a cut point is in the lower third). Hatched districts had no data or too few visits. "
+        f"Week {week}: {counts}.",
         f"Small-multiple maps of ILI% terciles for weeks {first_week} to {week} on {cut_text}; "
         f"in week {week}: {counts}.",
     )
@@ -46,19 +74,22 @@ def change_caption(*, prior_week: int, counts: str) -> tuple[str, str, str]:
     return (
         f"Change since week {prior_week}",
         "Week-over-week change of each district's ILI% against last week's revised value: a clear "
-        "increase or decrease is detectable by the change test and at least the minimum meaningful change.",
+        "increase or decrease is detectable by the change test and at least the minimum meaningful change. "
+        f"Districts: {counts}.",
         f"Map of week-over-week change classes: {counts}.",
     )
 
 
-def cluster_caption(*, variable: str, groups: Sequence[tuple[str, Sequence[str]]], others: str) -> tuple[str, str, str]:
+def cluster_caption(
+    *, variable: str, groups: Sequence[tuple[str, Sequence[str]]], others: str, counts: str = ""
+) -> tuple[str, str, str]:
     """(title, caption, alt) of the cluster map; ``groups`` holds (label, names) of significant districts."""
     listed = "; ".join(f"{label}: {join_names(names, limit=6)}" for label, names in groups)
     return (
         "Local Moran's I clusters",
         f"Districts whose {variable} resembles (high-high, low-low) or contrasts with (high-low, low-high) "
         "their neighbours' more than chance would suggest, after multiple-testing control. "
-        "Districts with no neighbour are never tested.",
+        "Districts with no neighbour are never tested." + (f" Districts: {counts}." if counts else ""),
         "Map of Local Moran's I cluster labels. "
         + (listed + ". " if listed else "No significant districts. ")
         + (f"Other districts: {others}." if others else ""),
@@ -89,8 +120,9 @@ def trend_caption(
     past_peaks: Sequence[float],
     threshold: float | None,
     baseline: float | None,
+    digits: int = 1,
 ) -> tuple[str, str, str]:
-    """(title, caption, alt) of the trend chart."""
+    """(title, caption, alt) of the trend chart; the threshold and baseline printed with ``digits``."""
     alt = (
         f"Line chart of pooled ILI% by season week. This season ({season_label}) is at "
         f"{fmt_pct(now)} in season week {season_week}"
@@ -100,8 +132,8 @@ def trend_caption(
             if past_peaks
             else ""
         )
-        + (f"; epidemic threshold {fmt_pct(threshold)}" if threshold is not None else "")
-        + (f"; baseline {fmt_pct(baseline)}" if baseline is not None else "")
+        + (f"; epidemic threshold {fmt_pct(threshold, digits)}" if threshold is not None else "")
+        + (f"; baseline {fmt_pct(baseline, digits)}" if baseline is not None else "")
         + "."
     )
     return (

@@ -12,6 +12,7 @@ Rules kept by ``tests/test_wording.py``:
 
 from __future__ import annotations
 
+import datetime as dt
 import math
 from collections.abc import Iterable, Sequence
 from typing import TypeGuard
@@ -27,6 +28,7 @@ __all__ = [
     "fmt_pct",
     "fmt_pp",
     "fmt_signed",
+    "fmt_week_dates",
     "join_names",
     "plural",
 ]
@@ -178,3 +180,16 @@ def class_digits(
         if ok:
             return d
     return max_digits
+
+
+def fmt_week_dates(start: dt.date, end: dt.date) -> str:
+    """The days of a week: ``'22–28 November 2026'``, ``'29 November to 5 December 2026'``.
+
+    >>> fmt_week_dates(dt.date(2026, 12, 27), dt.date(2027, 1, 2))
+    '27 December 2026 to 2 January 2027'
+    """
+    if start.year != end.year:
+        return f"{start.day} {start:%B %Y} to {end.day} {end:%B %Y}"
+    if start.month != end.month:
+        return f"{start.day} {start:%B} to {end.day} {end:%B %Y}"
+    return f"{start.day}–{end.day} {end:%B %Y}"
