@@ -208,3 +208,15 @@ def test_global_moran_text_never_prints_p_zero() -> None:
     assert "permutation p < 0.001, over the 47 districts tested" in text and "p = 0.000" not in text
     assert "p = 0.046" in nv.global_moran_text(available=True, i=0.1, expectation=-0.02, p_sim=0.046, n=9, notes=())
     assert nv.global_moran_text(available=False, i=math.nan, expectation=0, p_sim=0, n=0, notes=("too few.",)) == "Not computed this week: too few."
+
+
+def test_tercile_caption_without_cut_points_reads_as_a_sentence() -> None:
+    from sitrep.render.wording.captions import tercile_caption
+
+    title, caption, alt = tercile_caption(first_week=44, week=47, cuts=None, digits=2, counts="3 with data")
+    assert "cut points" not in caption and "Too few districts" in caption
+    assert "withheld" in caption and "without tercile classes" in alt
+    _, with_cuts, _ = tercile_caption(
+        first_week=44, week=47, cuts=(1.36, 2.77), digits=2, counts="15 in the highest third"
+    )
+    assert "cut points 1.36% and 2.77%" in with_cuts

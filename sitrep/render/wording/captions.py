@@ -54,16 +54,20 @@ def tercile_caption(
     *, first_week: int, week: int, cuts: tuple[float, float] | None, digits: int, counts: str
 ) -> tuple[str, str, str]:
     """(title, caption, alt) of the tercile small multiples; cut points printed with ``digits``."""
-    cut_text = (
-        f"cut points {fmt_pct(cuts[0], digits)} and {fmt_pct(cuts[1], digits)}"
-        if cuts
-        else "no cut points (too few districts)"
-    )
+    hatched = "Hatched districts had no data, too few visits, or are withheld to protect small counts."
+    if not cuts:
+        return (
+            f"ILI% terciles, weeks {first_week} to {week}",
+            f"Too few districts have data this week to cut ILI% into thirds, so no district is "
+            f"classed. {hatched} Week {week}: {counts}.",
+            f"Maps of weeks {first_week} to {week} without tercile classes (too few districts "
+            f"with data); in week {week}: {counts}.",
+        )
+    cut_text = f"cut points {fmt_pct(cuts[0], digits)} and {fmt_pct(cuts[1], digits)}"
     return (
         f"ILI% terciles, weeks {first_week} to {week}",
         f"Each district's ILI% in thirds, on this week's {cut_text} for every panel "
-        "(a value equal to a cut point is in the lower third). Hatched districts had no data or too few visits. "
-        f"Week {week}: {counts}.",
+        f"(a value equal to a cut point is in the lower third). {hatched} Week {week}: {counts}.",
         f"Small-multiple maps of ILI% terciles for weeks {first_week} to {week} on {cut_text}; "
         f"in week {week}: {counts}.",
     )
