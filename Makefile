@@ -19,6 +19,7 @@ demo: $(STAMP)
 
 test: $(STAMP)
 	$(BIN)/python -m ruff check sitrep tests
+	$(BIN)/python -m ruff format --check sitrep tests
 	$(BIN)/python -m mypy
 	$(BIN)/python -m pytest -q
 

@@ -470,7 +470,8 @@ def summary_table(results: Sequence[JobResult]) -> str:
         out.append("")
         out += [f"held {r.jurisdiction} ({r.config}): {r.message}" for r in held]
     counts = {
-        s: sum(r.status == s for r in results) for s in ("ok", "already-archived", "blocked", "failed")
+        s: sum(r.status == s for r in results)
+        for s in ("ok", "already-archived", "blocked", "failed")
     }
     archived = (
         f"{counts['already-archived']} already archived, " if counts["already-archived"] else ""

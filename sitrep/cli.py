@@ -42,7 +42,15 @@ if TYPE_CHECKING:
     from sitrep.deliver.signing import PublicKey
     from sitrep.model import ValidationReport
 
-__all__ = ["EXIT_ARCHIVED", "EXIT_BLOCKED", "EXIT_DELIVERY", "EXIT_HELD", "EXIT_OK", "EXIT_USAGE", "main"]
+__all__ = [
+    "EXIT_ARCHIVED",
+    "EXIT_BLOCKED",
+    "EXIT_DELIVERY",
+    "EXIT_HELD",
+    "EXIT_OK",
+    "EXIT_USAGE",
+    "main",
+]
 
 EXIT_OK = 0
 EXIT_BLOCKED = 1
@@ -95,44 +103,101 @@ def _parser() -> argparse.ArgumentParser:
     sub = parser.add_subparsers(dest="verb", metavar="VERB")
 
     def verb(name: str, help_text: str) -> argparse.ArgumentParser:
-        return sub.add_parser(name, help=help_text, description=help_text, epilog=EPILOG,
-                              formatter_class=argparse.RawDescriptionHelpFormatter)
+        return sub.add_parser(
+            name,
+            help=help_text,
+            description=help_text,
+            epilog=EPILOG,
+            formatter_class=argparse.RawDescriptionHelpFormatter,
+        )
 
     p = verb("demo", "build the invented demo week into an output folder")
-    p.add_argument("--out", type=Path, default=Path("sitrep-demo"), help="output folder (default ./sitrep-demo)")
-    p.add_argument("--inputs", type=Path, default=None,
-                   help="demo inputs folder (default: the copy shipped inside the package)")
+    p.add_argument(
+        "--out",
+        type=Path,
+        default=Path("sitrep-demo"),
+        help="output folder (default ./sitrep-demo)",
+    )
+    p.add_argument(
+        "--inputs",
+        type=Path,
+        default=None,
+        help="demo inputs folder (default: the copy shipped inside the package)",
+    )
     p.add_argument("--quiet", action="store_true", help=_QUIET)
 
     p = verb("build", "validate, analyse, render and archive this week's report")
-    p.add_argument("--config", type=Path, action="append", default=None,
-                   help="the jurisdiction's TOML configuration; repeat it to build several (a batch)")
-    p.add_argument("--configs-dir", type=Path, default=None, metavar="FOLDER",
-                   help="batch: build every *.toml file in FOLDER")
-    p.add_argument("--workers", type=int, default=None, metavar="N",
-                   help="batch: local worker processes (default: 2, or 1 for one configuration)")
-    p.add_argument("--scheduler", default=None, metavar="ADDRESS",
-                   help="batch: run on this Dask distributed scheduler, e.g. tcp://10.1.2.3:8786")
-    p.add_argument("--out", type=Path, default=None,
-                   help="output folder (default: output.folder; in a batch FOLDER/<jurisdiction>/)")
-    p.add_argument("--reissue", metavar="REASON", default=None,
-                   help="write a new version of an already archived week, giving the reason")
+    p.add_argument(
+        "--config",
+        type=Path,
+        action="append",
+        default=None,
+        help="the jurisdiction's TOML configuration; repeat it to build several (a batch)",
+    )
+    p.add_argument(
+        "--configs-dir",
+        type=Path,
+        default=None,
+        metavar="FOLDER",
+        help="batch: build every *.toml file in FOLDER",
+    )
+    p.add_argument(
+        "--workers",
+        type=int,
+        default=None,
+        metavar="N",
+        help="batch: local worker processes (default: 2, or 1 for one configuration)",
+    )
+    p.add_argument(
+        "--scheduler",
+        default=None,
+        metavar="ADDRESS",
+        help="batch: run on this Dask distributed scheduler, e.g. tcp://10.1.2.3:8786",
+    )
+    p.add_argument(
+        "--out",
+        type=Path,
+        default=None,
+        help="output folder (default: output.folder; in a batch FOLDER/<jurisdiction>/)",
+    )
+    p.add_argument(
+        "--reissue",
+        metavar="REASON",
+        default=None,
+        help="write a new version of an already archived week, giving the reason",
+    )
     p.add_argument("--no-archive", action="store_true", help="write the output folder only")
     p.add_argument("--quiet", action="store_true", help=_QUIET)
-    p.add_argument("--today", type=_date_arg, default=None, metavar="YYYY-MM-DD",
-                   help="the day the future-week rule compares with (default: today); for "
-                        "rebuilding or testing past weeks")
+    p.add_argument(
+        "--today",
+        type=_date_arg,
+        default=None,
+        metavar="YYYY-MM-DD",
+        help="the day the future-week rule compares with (default: today); for "
+        "rebuilding or testing past weeks",
+    )
 
     p = verb("check", "validate the inputs only; print the findings")
     p.epilog = (
         "exit codes: 0 no error-level finding (warnings may be listed) · 1 at least one error\n"
         "(a build would be blocked) or an unreadable input · 2 usage or configuration error"
     )
-    p.add_argument("--config", type=Path, required=True, help="the jurisdiction's TOML configuration")
-    p.add_argument("--table", type=Path, default=None, help="this week's table (overrides input.table)")
-    p.add_argument("--prior", type=Path, default=None, help="last week's table (overrides input.prior_table)")
-    p.add_argument("--today", type=_date_arg, default=None, metavar="YYYY-MM-DD",
-                   help="the day the future-week rule compares with (default: today)")
+    p.add_argument(
+        "--config", type=Path, required=True, help="the jurisdiction's TOML configuration"
+    )
+    p.add_argument(
+        "--table", type=Path, default=None, help="this week's table (overrides input.table)"
+    )
+    p.add_argument(
+        "--prior", type=Path, default=None, help="last week's table (overrides input.prior_table)"
+    )
+    p.add_argument(
+        "--today",
+        type=_date_arg,
+        default=None,
+        metavar="YYYY-MM-DD",
+        help="the day the future-week rule compares with (default: today)",
+    )
     p.add_argument("--json", action="store_true", help="print the findings as JSON")
 
     p = verb("init", "propose a configuration from a table and a boundary file, then check it")
@@ -143,28 +208,52 @@ def _parser() -> argparse.ArgumentParser:
         "exit codes: 0 written and no error-level finding · 1 written but check found an error,\n"
         "or an input could not be read · 2 usage error (e.g. --out exists without --force)"
     )
-    p.add_argument("--table", type=Path, required=True, help="a weekly table (CSV, XLSX or Parquet)")
-    p.add_argument("--boundaries", type=Path, required=True,
-                   help="the district boundaries (GeoPackage, GeoJSON or Shapefile)")
-    p.add_argument("--out", type=Path, default=Path("sitrep.toml"),
-                   help="where to write the configuration (default ./sitrep.toml)")
+    p.add_argument(
+        "--table", type=Path, required=True, help="a weekly table (CSV, XLSX or Parquet)"
+    )
+    p.add_argument(
+        "--boundaries",
+        type=Path,
+        required=True,
+        help="the district boundaries (GeoPackage, GeoJSON or Shapefile)",
+    )
+    p.add_argument(
+        "--out",
+        type=Path,
+        default=Path("sitrep.toml"),
+        help="where to write the configuration (default ./sitrep.toml)",
+    )
     p.add_argument("--force", action="store_true", help="replace --out when it exists")
-    p.add_argument("--today", type=_date_arg, default=None, metavar="YYYY-MM-DD",
-                   help="the day the check's future-week rule compares with (default: today)")
+    p.add_argument(
+        "--today",
+        type=_date_arg,
+        default=None,
+        metavar="YYYY-MM-DD",
+        help="the day the check's future-week rule compares with (default: today)",
+    )
 
-    p = verb("templates", "show where the packaged templates are, or copy them to start an override")
+    p = verb(
+        "templates", "show where the packaged templates are, or copy them to start an override"
+    )
     p.epilog = (
         "Without --copy: prints the packaged template folder and its files. With --copy DIR:\n"
-        "writes them into DIR; then set report.template_dir = \"DIR\" and keep only the files you\n"
+        'writes them into DIR; then set report.template_dir = "DIR" and keep only the files you\n'
         "change (missing ones fall back to the packaged templates). docs/templates.md lists the\n"
         "variables each template receives.\n"
         "exit codes: 0 done · 2 usage error (DIR holds a template file and --force is not given)"
     )
-    p.add_argument("--copy", type=Path, default=None, metavar="DIR",
-                   help="write the packaged templates into DIR (created when missing)")
+    p.add_argument(
+        "--copy",
+        type=Path,
+        default=None,
+        metavar="DIR",
+        help="write the packaged templates into DIR (created when missing)",
+    )
     p.add_argument("--force", action="store_true", help="replace template files already in DIR")
 
-    p = verb("verify", "recompute every checksum of an archived bundle, check its signature or a chain")
+    p = verb(
+        "verify", "recompute every checksum of an archived bundle, check its signature or a chain"
+    )
     p.epilog = (
         "Also prints the bundle's review state (draft, or approved by whom and when) from\n"
         "<bundle>.review.jsonl beside it.\n"
@@ -173,26 +262,56 @@ def _parser() -> argparse.ArgumentParser:
         "link is broken, or the review record was altered · 2 the path is not a bundle (or\n"
         "jurisdiction) folder, or a key is unreadable"
     )
-    p.add_argument("bundle", type=Path, nargs="?", default=None,
-                   help="bundle folder, e.g. ARCHIVE/<jurisdiction>/2026-W47/v1")
-    p.add_argument("--chain", type=Path, default=None, metavar="FOLDER",
-                   help="walk the hash chain of every bundle in ARCHIVE/<jurisdiction> instead")
-    p.add_argument("--public-key", type=Path, action="append", default=None, metavar="FILE",
-                   help="a trusted public key (PEM); repeat it for keys from before a rotation")
-    p.add_argument("--config", type=Path, default=None,
-                   help="take the trusted keys from output.trusted_keys of this configuration")
+    p.add_argument(
+        "bundle",
+        type=Path,
+        nargs="?",
+        default=None,
+        help="bundle folder, e.g. ARCHIVE/<jurisdiction>/2026-W47/v1",
+    )
+    p.add_argument(
+        "--chain",
+        type=Path,
+        default=None,
+        metavar="FOLDER",
+        help="walk the hash chain of every bundle in ARCHIVE/<jurisdiction> instead",
+    )
+    p.add_argument(
+        "--public-key",
+        type=Path,
+        action="append",
+        default=None,
+        metavar="FILE",
+        help="a trusted public key (PEM); repeat it for keys from before a rotation",
+    )
+    p.add_argument(
+        "--config",
+        type=Path,
+        default=None,
+        help="take the trusted keys from output.trusted_keys of this configuration",
+    )
 
     p = verb("keys", "create the key pair that signs archived bundles")
     keys = p.add_subparsers(dest="keys_verb", metavar="ACTION", required=True)
-    k = keys.add_parser("init", help="write a new Ed25519 key pair into a folder",
-                        description="Write a new Ed25519 key pair (private 0600, public 0644) into "
-                        "FOLDER and print the public key's fingerprint. Keep the private key "
-                        "outside the archive and point output.signing_key at it.",
-                        epilog="exit codes: 0 written · 3 a key file exists (never overwritten)")
-    k.add_argument("--out", type=Path, required=True, metavar="FOLDER",
-                   help="folder for the key pair (created 0700 when missing)")
+    k = keys.add_parser(
+        "init",
+        help="write a new Ed25519 key pair into a folder",
+        description="Write a new Ed25519 key pair (private 0600, public 0644) into "
+        "FOLDER and print the public key's fingerprint. Keep the private key "
+        "outside the archive and point output.signing_key at it.",
+        epilog="exit codes: 0 written · 3 a key file exists (never overwritten)",
+    )
+    k.add_argument(
+        "--out",
+        type=Path,
+        required=True,
+        metavar="FOLDER",
+        help="folder for the key pair (created 0700 when missing)",
+    )
 
-    p = verb("index", "write the archive's audit index (index.html) and a comparison page per reissue")
+    p = verb(
+        "index", "write the archive's audit index (index.html) and a comparison page per reissue"
+    )
     p.epilog = (
         "exit codes: 0 written and every bundle verifies · 1 written, but a bundle fails its\n"
         "checksums or breaks its chain (marked in the index) · 2 the folder is not an archive"
@@ -205,7 +324,9 @@ def _parser() -> argparse.ArgumentParser:
         "week, direction word or caution would mislead (each is listed with its paragraph) ·\n"
         "2 the bundle or the edited file cannot be read"
     )
-    p.add_argument("bundle", type=Path, help="bundle folder, e.g. ARCHIVE/<jurisdiction>/2026-W47/v1")
+    p.add_argument(
+        "bundle", type=Path, help="bundle folder, e.g. ARCHIVE/<jurisdiction>/2026-W47/v1"
+    )
     p.add_argument("edited", type=Path, help="the edited draft: .docx, .md or .txt")
     p.add_argument("--json", action="store_true", help="print the findings as JSON")
 
@@ -220,11 +341,17 @@ def _parser() -> argparse.ArgumentParser:
         "it arrived before using --resend."
     )
     p.add_argument("bundle", type=Path, help="bundle folder")
-    p.add_argument("--config", type=Path, required=True, help="the jurisdiction's TOML configuration")
-    p.add_argument("--dry-run", action="store_true", help="write the message as .eml instead of sending")
+    p.add_argument(
+        "--config", type=Path, required=True, help="the jurisdiction's TOML configuration"
+    )
+    p.add_argument(
+        "--dry-run", action="store_true", help="write the message as .eml instead of sending"
+    )
     p.add_argument("--resend", action="store_true", help="send again although the bundle was sent")
 
-    p = verb("run", "the scheduled Monday job: newest extract in the inbox -> build -> archive -> send")
+    p = verb(
+        "run", "the scheduled Monday job: newest extract in the inbox -> build -> archive -> send"
+    )
     p.epilog = (
         "The report week is the latest week of the newest extract matching input.inbox_pattern in\n"
         "input.inbox; the extract with the next older week is last week's table. A week already\n"
@@ -236,10 +363,19 @@ def _parser() -> argparse.ArgumentParser:
         "partial or unknown (see the message; nothing is resent automatically) · 4 built and\n"
         "archived, held for review (the message says who must review what)"
     )
-    p.add_argument("--config", type=Path, required=True, help="the jurisdiction's TOML configuration")
-    p.add_argument("--dry-run", action="store_true", help="write the e-mail as .eml instead of sending")
-    p.add_argument("--today", type=_date_arg, default=None, metavar="YYYY-MM-DD",
-                   help="the day the future-week rule compares with (default: today)")
+    p.add_argument(
+        "--config", type=Path, required=True, help="the jurisdiction's TOML configuration"
+    )
+    p.add_argument(
+        "--dry-run", action="store_true", help="write the e-mail as .eml instead of sending"
+    )
+    p.add_argument(
+        "--today",
+        type=_date_arg,
+        default=None,
+        metavar="YYYY-MM-DD",
+        help="the day the future-week rule compares with (default: today)",
+    )
 
     p = verb("approve", "sign off an archived bundle held for review, so that it can be sent")
     p.epilog = (
@@ -249,7 +385,9 @@ def _parser() -> argparse.ArgumentParser:
         "exit codes: 0 approved · 1 the run was blocked by validation · 2 usage error ·\n"
         "3 the bundle fails verification or its review record was altered (nothing written)"
     )
-    p.add_argument("bundle", type=Path, help="bundle folder, e.g. ARCHIVE/<jurisdiction>/2026-W47/v1")
+    p.add_argument(
+        "bundle", type=Path, help="bundle folder, e.g. ARCHIVE/<jurisdiction>/2026-W47/v1"
+    )
     p.add_argument("--by", required=True, metavar="NAME", help="who reviewed the report")
     p.add_argument("--note", default="", help="what was checked (one line)")
     return parser
@@ -285,7 +423,9 @@ def _print_findings(report: ValidationReport, stream: object = None) -> None:
                 f.rule,
                 (f.file or "-") + (f":{f.line}" if f.line is not None else ""),
                 f.column or "-",
-                districts[0] if len(districts) == 1 else (f"{len(districts)} districts" if districts else "-"),
+                districts[0]
+                if len(districts) == 1
+                else (f"{len(districts)} districts" if districts else "-"),
                 g.message(),
             )
         )
@@ -336,8 +476,15 @@ def _build(
             print(message)
 
     try:
-        result = pipeline.build(config, out_dir=out, archive=archive, reissue_reason=reissue,
-                                today=today, log=log, progress=progress())
+        result = pipeline.build(
+            config,
+            out_dir=out,
+            archive=archive,
+            reissue_reason=reissue,
+            today=today,
+            log=log,
+            progress=progress(),
+        )
     except ValidationFailed as exc:
         if exc.report is not None:
             _print_findings(exc.report, sys.stderr)
@@ -345,8 +492,9 @@ def _build(
     except DeliveryError as exc:
         if demo and isinstance(exc, ArchiveExists):
             print(f"note: {exc}")
-            result = pipeline.build(config, out_dir=out, archive=False, today=today,
-                                    log=log, progress=progress())
+            result = pipeline.build(
+                config, out_dir=out, archive=False, today=today, log=log, progress=progress()
+            )
         else:
             raise
     for path in result.outputs:
@@ -358,8 +506,15 @@ def _build(
 
         review = review_state(result.bundle.path, config.delivery.require_review)
         if not review.may_send:
-            print(f"draft {result.bundle.path}: " + held_message(
-                review, result.bundle.path, reviewer=config.delivery.reviewer, config_path=config.source))
+            print(
+                f"draft {result.bundle.path}: "
+                + held_message(
+                    review,
+                    result.bundle.path,
+                    reviewer=config.delivery.reviewer,
+                    config_path=config.source,
+                )
+            )
     return EXIT_OK
 
 
@@ -373,8 +528,14 @@ def _cmd_build(args: argparse.Namespace) -> int:
         raise ConfigError("build needs --config FILE (repeatable) or --configs-dir FOLDER")
     batch = len(configs) > 1 or args.configs_dir is not None or args.scheduler is not None
     if not batch and args.workers is None:
-        return _build(_load(configs[0]), args.out, reissue=args.reissue,
-                      archive=not args.no_archive, today=args.today, quiet=args.quiet)
+        return _build(
+            _load(configs[0]),
+            args.out,
+            reissue=args.reissue,
+            archive=not args.no_archive,
+            today=args.today,
+            quiet=args.quiet,
+        )
     from sitrep.batch import batch_exit_code, run_batch, summary_table
 
     results = run_batch(
@@ -452,7 +613,7 @@ def _cmd_templates(args: argparse.Namespace) -> int:
 _SIGNATURE_WORDS = {
     "valid": "signed by {fp} (a trusted key) at {at}",
     "valid-untrusted": "signed by {fp} at {at}; no trusted key was given (--public-key or "
-                       "output.trusted_keys), so this shows integrity, not who signed it",
+    "output.trusted_keys), so this shows integrity, not who signed it",
     "untrusted-key": "signed by {fp}, which is NOT a trusted key",
     "invalid": "the signature is INVALID",
     "missing": "the signature file is MISSING (the manifest records one by {fp})",
@@ -474,14 +635,22 @@ def _cmd_verify(args: argparse.Namespace) -> int:
     from sitrep.deliver.archive import verify_bundle
 
     if (args.bundle is None) == (args.chain is None):
-        raise ConfigError("pass a bundle folder, or --chain ARCHIVE/<jurisdiction> (one of the two)")
+        raise ConfigError(
+            "pass a bundle folder, or --chain ARCHIVE/<jurisdiction> (one of the two)"
+        )
     trusted = _trusted_keys(args)
     if args.chain is not None:
         return _verify_chain(args.chain, trusted)
     if not args.bundle.is_dir():
-        raise ConfigError(f"{args.bundle} is not a folder; pass ARCHIVE/<jurisdiction>/<year>-W<ww>/v<k>")
+        raise ConfigError(
+            f"{args.bundle} is not a folder; pass ARCHIVE/<jurisdiction>/<year>-W<ww>/v<k>"
+        )
     result = verify_bundle(args.bundle, trusted)
-    for label, names in (("missing", result.missing), ("changed", result.changed), ("extra", result.extra)):
+    for label, names in (
+        ("missing", result.missing),
+        ("changed", result.changed),
+        ("extra", result.extra),
+    ):
         for name in names:
             print(f"{label}: {name}")
     if not result.ok:
@@ -512,7 +681,9 @@ def _verify_chain(folder: Path, trusted: tuple[PublicKey, ...]) -> int:
     report = verify_chain(folder, trusted)
     for link in report.links:
         place = f"link {link.sequence}" if link.sequence is not None else "no link"
-        words = _SIGNATURE_WORDS.get(link.signature, link.signature).split(";")[0].format(fp="", at="")
+        words = (
+            _SIGNATURE_WORDS.get(link.signature, link.signature).split(";")[0].format(fp="", at="")
+        )
         print(f"{link.status:>12}  {link.bundle_id:<14} {place:<8} {words}")
         for problem in link.problems:
             print(f"              {problem}")
@@ -545,14 +716,18 @@ def _cmd_index(args: argparse.Namespace) -> int:
     from sitrep.errors import DeliveryError
 
     if not args.archive.is_dir():
-        raise ConfigError(f"{args.archive} is not a folder; pass the archive root ([output] archive)")
+        raise ConfigError(
+            f"{args.archive} is not a folder; pass the archive root ([output] archive)"
+        )
     try:
         written, entries = write_index(args.archive)
     except DeliveryError as exc:
         raise ConfigError(str(exc)) from None
     bad = [e for e in entries if e.checksums != "ok" or "broken" in e.chain]
     for e in bad:
-        print(f"problem: {e.jurisdiction} {e.week} v{e.version}: checksums {e.checksums}, chain {e.chain}")
+        print(
+            f"problem: {e.jurisdiction} {e.week} v{e.version}: checksums {e.checksums}, chain {e.chain}"
+        )
     print(f"wrote {written[-1]} ({len(entries)} bundle(s); {len(written) - 1} comparison page(s))")
     return EXIT_BLOCKED if bad else EXIT_OK
 
@@ -562,7 +737,9 @@ def _cmd_check_draft(args: argparse.Namespace) -> int:
     from sitrep.deliver.draft_check import as_json, check_draft, read_edited_draft
 
     if not args.bundle.is_dir():
-        raise ConfigError(f"{args.bundle} is not a folder; pass ARCHIVE/<jurisdiction>/<year>-W<ww>/v<k>")
+        raise ConfigError(
+            f"{args.bundle} is not a folder; pass ARCHIVE/<jurisdiction>/<year>-W<ww>/v<k>"
+        )
     if (args.bundle / "manifest-sha256.txt").is_file() and not verify_bundle(args.bundle).ok:
         raise ConfigError(
             f"{args.bundle} fails `sitrep verify`; a draft cannot be checked against a changed bundle"
@@ -579,8 +756,9 @@ def _cmd_check_draft(args: argparse.Namespace) -> int:
             print(f.line())
         verdict = (
             f"{len(findings)} place(s) in {args.edited.name} would mislead; fix them or ask the "
-            "surveillance team" if findings else
-            f"OK: {len(paragraphs)} paragraph(s) of {args.edited.name} agree with {args.bundle}"
+            "surveillance team"
+            if findings
+            else f"OK: {len(paragraphs)} paragraph(s) of {args.edited.name} agree with {args.bundle}"
         )
         print(verdict)
     return EXIT_BLOCKED if findings else EXIT_OK
@@ -654,7 +832,9 @@ def _cmd_run(args: argparse.Namespace) -> int:
 
     config = _load(args.config)
     try:
-        report = scheduled_run(config, dry_run=args.dry_run, today=args.today, log=lambda m: print(m))
+        report = scheduled_run(
+            config, dry_run=args.dry_run, today=args.today, log=lambda m: print(m)
+        )
     except ValidationFailed as exc:
         if exc.report is not None:
             _print_findings(exc.report, sys.stderr)

@@ -409,9 +409,7 @@ def _check_week_sources(raw: dict[str, Any]) -> None:
     columns = section.get("columns") if isinstance(section, dict) else None
     if not isinstance(columns, dict):
         return
-    given = [
-        keys for keys in _WEEK_SOURCES if any(columns.get(k) not in (None, "") for k in keys)
-    ]
+    given = [keys for keys in _WEEK_SOURCES if any(columns.get(k) not in (None, "") for k in keys)]
     if len(given) > 1:
         named = [" + ".join(f"input.columns.{k}" for k in keys) for keys in given]
         raise ConfigError(
@@ -440,18 +438,31 @@ def _check_ranges(c: Config) -> None:
         (a.min_change_pp >= 0, "analysis.min_change_pp must not be negative", a.min_change_pp),
         (a.knn_k >= 1, "analysis.knn_k must be at least 1", a.knn_k),
         (a.link_islands_k >= 0, "analysis.link_islands_k must not be negative", a.link_islands_k),
-        (1 <= c.weeks.season_start_week <= 52, "weeks.season_start_week must be 1..52",
-         c.weeks.season_start_week),
+        (
+            1 <= c.weeks.season_start_week <= 52,
+            "weeks.season_start_week must be 1..52",
+            c.weeks.season_start_week,
+        ),
         (c.input.max_input_mb > 0, "input.max_input_mb must be positive", c.input.max_input_mb),
-        (c.seasonal.onset_weeks >= 1, "seasonal.onset_weeks must be at least 1", c.seasonal.onset_weeks),
-        (0 <= c.seasonal.mem_window_end_week <= 53
-         and c.seasonal.mem_window_end_week != c.weeks.season_start_week,
-         "seasonal.mem_window_end_week must be 0 (whole season) or a week 1..53 other than "
-         "weeks.season_start_week", c.seasonal.mem_window_end_week),
+        (
+            c.seasonal.onset_weeks >= 1,
+            "seasonal.onset_weeks must be at least 1",
+            c.seasonal.onset_weeks,
+        ),
+        (
+            0 <= c.seasonal.mem_window_end_week <= 53
+            and c.seasonal.mem_window_end_week != c.weeks.season_start_week,
+            "seasonal.mem_window_end_week must be 0 (whole season) or a week 1..53 other than "
+            "weeks.season_start_week",
+            c.seasonal.mem_window_end_week,
+        ),
         (1 <= c.email.port <= 65535, "email.port must be 1..65535", c.email.port),
         (c.email.retries >= 0, "email.retries must not be negative", c.email.retries),
-        (c.report.top_districts_in_pdf >= 0, "report.top_districts_in_pdf must not be negative",
-         c.report.top_districts_in_pdf),
+        (
+            c.report.top_districts_in_pdf >= 0,
+            "report.top_districts_in_pdf must not be negative",
+            c.report.top_districts_in_pdf,
+        ),
     ]
     for ok, message, value in checks:
         if not ok:

@@ -712,12 +712,18 @@ def scheduled_run(
         message = held_message(
             review, bundle, reviewer=config.delivery.reviewer, config_path=config.source
         )
-        return report("held", bundle, built, None, f"week {week}: {done} in {bundle}; {message}", review)
+        return report(
+            "held", bundle, built, None, f"week {week}: {done} in {bundle}; {message}", review
+        )
     outcome = send_archived(
         config, bundle, dry_run=dry_run, now=now, env=env, sleep=sleep, ssl_context=ssl_context
     )
     if outcome.status == "dry-run":
-        held = "; held for review: a real send waits for `sitrep approve`" if not review.may_send else ""
+        held = (
+            "; held for review: a real send waits for `sitrep approve`"
+            if not review.may_send
+            else ""
+        )
         return report(
             "dry-run",
             bundle,

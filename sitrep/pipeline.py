@@ -176,7 +176,9 @@ def read_inputs(
         report = report.merged(found)
         prior = history = None
         if settings.prior_table is not None:
-            prior, found = read_count_table(settings.prior_table, settings, system, role="prior_table")
+            prior, found = read_count_table(
+                settings.prior_table, settings, system, role="prior_table"
+            )
             report = report.merged(found)
         if settings.history is not None:
             history, found = read_count_table(settings.history, settings, system, role="history")
@@ -187,14 +189,24 @@ def read_inputs(
             weekly, inferred = _weekly_file(config, prior)
             report = report.merged(
                 validate_table(
-                    table, districts, config.validation, today=today, season_start_week=start,
-                    weekly_file=weekly, weekly_inferred=inferred, prior=prior,
+                    table,
+                    districts,
+                    config.validation,
+                    today=today,
+                    season_start_week=start,
+                    weekly_file=weekly,
+                    weekly_inferred=inferred,
+                    prior=prior,
                 )
             )
         if history is not None:
             report = report.merged(
                 validate_table(
-                    history, districts, config.validation, today=today, season_start_week=start,
+                    history,
+                    districts,
+                    config.validation,
+                    today=today,
+                    season_start_week=start,
                     latest_week_rules=False,
                 )
             )
@@ -251,7 +263,9 @@ def _archived_note(config: Config, table: CountTable | None) -> Finding | None:
 
     system = WeekSystem(config.weeks.system)
     week = (
-        EpiWeek.parse(config.weeks.report_week, system) if config.weeks.report_week else table.latest_week
+        EpiWeek.parse(config.weeks.report_week, system)
+        if config.weeks.report_week
+        else table.latest_week
     )
     latest = next_version(config.output.archive, config.report.jurisdiction, str(week)) - 1
     if latest < 1:
@@ -274,16 +288,30 @@ PREFLIGHT_RULES: tuple[tuple[str, str], ...] = (
         "template-invalid",
         "a template in report.template_dir cannot be parsed or uses a value the report does not have",
     ),
-    ("output-folder-unusable", "output.folder or output.archive is a file, or a link leads out of it"),
-    ("week-archived", "the report week is already archived: build needs --reissue or --no-archive (info)"),
+    (
+        "output-folder-unusable",
+        "output.folder or output.archive is a file, or a link leads out of it",
+    ),
+    (
+        "week-archived",
+        "the report week is already archived: build needs --reissue or --no-archive (info)",
+    ),
 )
 """Rules of :func:`preflight`: conditions outside the input files that would stop a build
 after validation. Both ``check`` and ``build`` apply them, so a check that passes means a build
 that is not refused for them."""
 
 _OUTPUT_NAMES = (
-    "report.html", "report.pdf", "draft.md", "draft.docx", "email.txt", "results.csv",
-    "results.json", "results-dictionary.csv", "validation.json", "manifest.json",
+    "report.html",
+    "report.pdf",
+    "draft.md",
+    "draft.docx",
+    "email.txt",
+    "results.csv",
+    "results.json",
+    "results-dictionary.csv",
+    "validation.json",
+    "manifest.json",
     "figures/map.svg",
 )
 
@@ -384,7 +412,6 @@ def _folder_findings(config: Config, out_dir: Path, archive: bool) -> list[Findi
                 )
             )
     return found
-
 
 
 _GRAPH_CACHE: collections.OrderedDict[tuple[Any, ...], DistrictGraph] = collections.OrderedDict()
@@ -614,12 +641,21 @@ def _build(
     with _timed(timings, "analysis", progress, runs):
         earlier = _earlier_publications(config, week) if archive else {}
         analysis = analyse_week(
-            inputs.table, inputs.prior, inputs.districts, graph, config.analysis, week=week,
-            earlier=earlier, on_step=_stepper(progress, "analysis"),
+            inputs.table,
+            inputs.prior,
+            inputs.districts,
+            graph,
+            config.analysis,
+            week=week,
+            earlier=earlier,
+            on_step=_stepper(progress, "analysis"),
         )
     with _timed(timings, "thresholds", progress):
         seasonal = seasonal_context(
-            inputs.history, inputs.table, week, config.seasonal,
+            inputs.history,
+            inputs.table,
+            week,
+            config.seasonal,
             season_start_week=config.weeks.season_start_week,
         )
     published_validation = redact_findings(
@@ -636,13 +672,20 @@ def _build(
     with reproducible_env(source_date_epoch(week.end)):
         epoch = read_source_date_epoch()
         build_time = (
-            dt.datetime.fromtimestamp(epoch, dt.UTC).isoformat().replace("+00:00", "Z") if epoch is not None else ""
+            dt.datetime.fromtimestamp(epoch, dt.UTC).isoformat().replace("+00:00", "Z")
+            if epoch is not None
+            else ""
         )
         digits = context_digits(analysis, seasonal)
         with _timed(timings, "maps", progress):
             figures = draw_report_figures(
-                analysis, seasonal, inputs.districts, digits=digits, on_step=_stepper(progress, "maps"),
-                jurisdiction=config.report.jurisdiction, week_dates=fmt_week_dates(week.start, week.end),
+                analysis,
+                seasonal,
+                inputs.districts,
+                digits=digits,
+                on_step=_stepper(progress, "maps"),
+                jurisdiction=config.report.jurisdiction,
+                week_dates=fmt_week_dates(week.start, week.end),
             )
         with _timed(timings, "html", progress):
             context = build_context(
@@ -671,14 +714,18 @@ def _build(
                     asset_dir=asset_dir(),
                     pdf_variant=variant,
                     # PDF/A-3 allows any attached file; the other variants get none
-                    attachments=(("results.csv", results_csv(analysis, config.analysis, jurisdiction=name)),)
+                    attachments=(
+                        ("results.csv", results_csv(analysis, config.analysis, jurisdiction=name)),
+                    )
                     if variant and variant.startswith("pdf/a-3")
                     else (),
                 )
         with _timed(timings, "drafts", progress):
             files["draft.md"] = render_markdown(context, config.report.template_dir).encode("utf-8")
             files["draft.docx"] = render_docx(context)
-            files["email.txt"] = render_email_body(context, config.report.template_dir).encode("utf-8")
+            files["email.txt"] = render_email_body(context, config.report.template_dir).encode(
+                "utf-8"
+            )
     with _timed(timings, "results", progress):
         files["results.csv"] = results_csv(analysis, config.analysis, jurisdiction=name)
         files["results.json"] = results_json(analysis, config.analysis, jurisdiction=name)
@@ -690,7 +737,9 @@ def _build(
             )
         district_names = {
             str(k): str(v)
-            for k, v in zip(analysis.table["district_id"], analysis.table["district_name"], strict=True)
+            for k, v in zip(
+                analysis.table["district_id"], analysis.table["district_name"], strict=True
+            )
         }
         # the annex keeps rule, file, line and column; withheld districts' values stay redacted
         files[INTERNAL_QUALITY_CSV] = internal_quality_csv(
@@ -706,7 +755,9 @@ def _build(
             files[f"figures/{name}"] = data
         manifest = _manifest(config, week, inputs, versions, reissue_reason)
         manifest["report_version"] = context.report_version
-        manifest["page_one_districts"] = page_one_districts(context.named_district_ids, district_names)
+        manifest["page_one_districts"] = page_one_districts(
+            context.named_district_ids, district_names
+        )
         manifest["outputs"] = {
             name: {"sha256": hashlib.sha256(data).hexdigest(), "size_bytes": len(data)}
             for name, data in sorted(files.items())
@@ -724,7 +775,9 @@ def _build(
                     archived[f"inputs/{f.role}{f.path.suffix.lower()}"] = f.path.read_bytes()
                     if f.path.suffix.lower() == ".shp":
                         for sidecar in sorted(f.path.parent.glob(f.path.stem + ".*")):
-                            archived[f"inputs/{f.role}{sidecar.suffix.lower()}"] = sidecar.read_bytes()
+                            archived[f"inputs/{f.role}{sidecar.suffix.lower()}"] = (
+                                sidecar.read_bytes()
+                            )
             bundle = write_bundle(
                 config.output.archive,
                 config.report.jurisdiction,

@@ -135,7 +135,9 @@ class TextProgress(Progress):
     def _ensure_ticker(self) -> None:
         """Redraw the bar's seconds while the stage runs (terminal only)."""
         if self._ticker is None:
-            self._ticker = threading.Thread(target=self._run_ticker, name="sitrep-progress", daemon=True)
+            self._ticker = threading.Thread(
+                target=self._run_ticker, name="sitrep-progress", daemon=True
+            )
             self._ticker.start()
 
     def _run_ticker(self) -> None:

@@ -137,7 +137,9 @@ def _read_table_sample(path: Path, prop: Proposal) -> tuple[list[str], list[list
         table = pq.read_table(path)
         names = list(table.column_names)
         cols = [table.column(n).to_pylist()[:SAMPLE_ROWS] for n in names]
-        return names, [["" if v is None else _cell_text(v) for v in row] for row in zip(*cols, strict=True)]
+        return names, [
+            ["" if v is None else _cell_text(v) for v in row] for row in zip(*cols, strict=True)
+        ]
     raise InputError(f"expected a .csv, .txt, .xlsx or .parquet table, got {path.name}")
 
 
@@ -247,7 +249,9 @@ def propose(table: Path, boundaries: Path) -> Proposal:
     header, rows = _read_table_sample(table, prop)
     if not header or not rows:
         raise InputError(f"{table.name} has no header row and data rows to read")
-    cols = {h: [(r[i] if i < len(r) else "") for r in rows] for i, h in enumerate(header) if h.strip()}
+    cols = {
+        h: [(r[i] if i < len(r) else "") for r in rows] for i, h in enumerate(header) if h.strip()
+    }
     fields = _read_boundary_fields(boundaries, prop)
     taken: set[str] = set()
 
@@ -276,7 +280,11 @@ def propose(table: Path, boundaries: Path) -> Proposal:
             "district ids must be written the same way in both"
         )
     share = min(best[0], 1.0)
-    take("district_id", best[1], f"{share:.0%} of its values are ids in the boundary field {best[2]!r}")
+    take(
+        "district_id",
+        best[1],
+        f"{share:.0%} of its values are ids in the boundary field {best[2]!r}",
+    )
     prop.boundaries_id = (best[2], f"the field whose values match the table's {best[1]!r}")
 
     # district name: the other text columns matching another boundary field, else a header word
@@ -296,7 +304,11 @@ def propose(table: Path, boundaries: Path) -> Proposal:
             break
     if name_col is None:
         for h, values in cols.items():
-            if h not in taken and _has(h, "name", "district", "area", "region") and _numbers(values) is None:
+            if (
+                h not in taken
+                and _has(h, "name", "district", "area", "region")
+                and _numbers(values) is None
+            ):
                 name_col = h
                 break
     if prop.boundaries_name[0] is None:
@@ -309,8 +321,13 @@ def propose(table: Path, boundaries: Path) -> Proposal:
 
     # the week
     label = next(
-        (h for h, v in cols.items() if h not in taken and all(_LABEL.match(x) for x in v if x.strip())
-         and any(x.strip() for x in v)),
+        (
+            h
+            for h, v in cols.items()
+            if h not in taken
+            and all(_LABEL.match(x) for x in v if x.strip())
+            and any(x.strip() for x in v)
+        ),
         None,
     )
     if label is not None:
@@ -364,14 +381,21 @@ def propose(table: Path, boundaries: Path) -> Proposal:
         if whole is not None and all(x >= 0 for x in whole):
             counts[h] = whole
     ili = next(
-        (h for h in counts if _has(h, "ili", "influenza", "flu")
-         and not _has(h, "%", "pct", "percent", "rate")),
+        (
+            h
+            for h in counts
+            if _has(h, "ili", "influenza", "flu") and not _has(h, "%", "pct", "percent", "rate")
+        ),
         None,
     )
     total = next(
-        (h for h in counts if h != ili
-         and _has(h, "total", "all", "visits", "patients", "encounters", "consultations", "seen")
-         and not _has(h, "site", "sites", "clinic", "provider")),
+        (
+            h
+            for h in counts
+            if h != ili
+            and _has(h, "total", "all", "visits", "patients", "encounters", "consultations", "seen")
+            and not _has(h, "site", "sites", "clinic", "provider")
+        ),
         None,
     )
     if ili and total:
@@ -388,8 +412,12 @@ def propose(table: Path, boundaries: Path) -> Proposal:
             f"{', '.join(cols)}); set input.columns.ili_visits and total_visits by hand"
         )
     sites = next(
-        (h for h in counts if h not in taken
-         and _has(h, "site", "sites", "clinic", "clinics", "provider", "providers", "practices")),
+        (
+            h
+            for h in counts
+            if h not in taken
+            and _has(h, "site", "sites", "clinic", "clinics", "provider", "providers", "practices")
+        ),
         None,
     )
     if sites:
@@ -457,14 +485,18 @@ def render_config(prop: Proposal, out: Path, jurisdiction: str = "My jurisdictio
         "# Relative paths are resolved against this file's folder.",
         "",
         "[report]",
-        _line("jurisdiction", _q(jurisdiction), "a placeholder; shown in the header and the archive path"),
+        _line(
+            "jurisdiction",
+            _q(jurisdiction),
+            "a placeholder; shown in the header and the archive path",
+        ),
         'title = "Weekly influenza-like illness situation report"',
         _line("contact", _q("Surveillance team"), "a placeholder for the report's contact line"),
         "",
         "[input]",
         f"table = {_q(_rel(prop.table, base))}",
-        "# prior_table = \"last_week.csv\"              # last week's extract, for revisions and change",
-        "# history = \"past_seasons.csv\"               # past seasons, for baselines and thresholds",
+        '# prior_table = "last_week.csv"              # last week\'s extract, for revisions and change',
+        '# history = "past_seasons.csv"               # past seasons, for baselines and thresholds',
         f"boundaries = {_q(_rel(prop.boundaries, base))}",
     ]
     if prop.layer:
@@ -474,21 +506,38 @@ def render_config(prop: Proposal, out: Path, jurisdiction: str = "My jurisdictio
     if name:
         lines.append(_line("boundaries_name_column", _q(name), why))
     else:
-        lines.append("boundaries_name_column = \"\"                # no name field found: ids are shown")
+        lines.append(
+            'boundaries_name_column = ""                # no name field found: ids are shown'
+        )
     if prop.sheet:
         lines.append(_line("sheet", _q(prop.sheet), "the worksheet holding the most data"))
     if prop.table.suffix.lower() in (".csv", ".txt"):
-        lines.append(_line("delimiter", _q(prop.delimiter), "the character splitting the header most often"))
+        lines.append(
+            _line("delimiter", _q(prop.delimiter), "the character splitting the header most often")
+        )
         lines.append(f"encoding = {_q(prop.encoding)}")
     lines += ["", "[input.columns]                                  # column names as in the table"]
-    order = ("district_id", "district_name", "week", "year", "week_number", "week_start", "week_end",
-             "ili_visits", "total_visits", "reporting_sites", "rate")
+    order = (
+        "district_id",
+        "district_name",
+        "week",
+        "year",
+        "week_number",
+        "week_start",
+        "week_end",
+        "ili_visits",
+        "total_visits",
+        "reporting_sites",
+        "rate",
+    )
     for key in order:
         if key in prop.columns:
             column, reason = prop.columns[key]
             lines.append(_line(key, _q(column), reason))
         elif key == "week" and any(k in prop.columns for k in ("year", "week_start", "week_end")):
-            lines.append('week = ""                                    # the week comes from the columns below')
+            lines.append(
+                'week = ""                                    # the week comes from the columns below'
+            )
         elif key in ("district_name", "reporting_sites"):
             lines.append(f'{key} = ""'.ljust(44) + " # not found in the table")
     if prop.rate_scale:

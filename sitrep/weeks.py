@@ -31,7 +31,11 @@ class WeekSystem(enum.Enum):
     @property
     def label(self) -> str:
         """Human-readable name used in the report."""
-        return "MMWR (Sunday to Saturday)" if self is WeekSystem.MMWR else "ISO 8601 (Monday to Sunday)"
+        return (
+            "MMWR (Sunday to Saturday)"
+            if self is WeekSystem.MMWR
+            else "ISO 8601 (Monday to Sunday)"
+        )
 
     @property
     def first_weekday(self) -> int:

@@ -34,7 +34,8 @@ def demo_config(out: Path):  # type: ignore[no-untyped-def]
 
     config = load_config(DEMO / "sitrep.toml")
     return dataclasses.replace(
-        config, output=dataclasses.replace(config.output, folder=out / "out", archive=out / "archive")
+        config,
+        output=dataclasses.replace(config.output, folder=out / "out", archive=out / "archive"),
     )
 
 

@@ -28,7 +28,14 @@ from toml_fixtures import toml_value
 TODAY = dt.date(2026, 11, 30)
 """The Monday after MMWR week 2026-W47 (22-28 November 2026)."""
 WEEKS = tuple(f"2026-W{w}" for w in range(40, 48))
-HEADER = ("district_id", "district_name", "epi_week", "reporting_sites", "ili_visits", "total_visits")
+HEADER = (
+    "district_id",
+    "district_name",
+    "epi_week",
+    "reporting_sites",
+    "ili_visits",
+    "total_visits",
+)
 CELL = 10_000.0  # metres
 ORIGIN = (500_000.0, 5_500_000.0)  # EPSG:32630
 FORBIDDEN = re.compile(r"\b(nan|NaN|inf|Infinity|None|undefined)\b|\{\{|\}\}|\{%|%\}")
@@ -40,8 +47,22 @@ FORBIDDEN = re.compile(r"\b(nan|NaN|inf|Infinity|None|undefined)\b|\{\{|\}\}|\{%
 
 def default_names(n: int) -> list[str]:
     base = [
-        "Arden", "Brannoch", "Coldwater", "Dunmere", "Eastfold", "Fennick", "Garrow", "Holloway",
-        "Ivel", "Juniper", "Kestrel", "Larkmoor", "Merrow", "Nettlebed", "Orrin", "Pellow",
+        "Arden",
+        "Brannoch",
+        "Coldwater",
+        "Dunmere",
+        "Eastfold",
+        "Fennick",
+        "Garrow",
+        "Holloway",
+        "Ivel",
+        "Juniper",
+        "Kestrel",
+        "Larkmoor",
+        "Merrow",
+        "Nettlebed",
+        "Orrin",
+        "Pellow",
     ]
     return [base[k] if k < len(base) else f"District {k + 1}" for k in range(n)]
 
@@ -117,7 +138,9 @@ def grid_frame(
     n_grid = len(ids) - (1 if island else 0)
     for k in range(n_grid):
         col, row = k % cols, k // cols
-        geoms.append(box(x0 + col * CELL, y0 + row * CELL, x0 + (col + 1) * CELL, y0 + (row + 1) * CELL))
+        geoms.append(
+            box(x0 + col * CELL, y0 + row * CELL, x0 + (col + 1) * CELL, y0 + (row + 1) * CELL)
+        )
     if island:
         geoms.append(box(x0 + (cols + 3) * CELL, y0, x0 + (cols + 4) * CELL, y0 + CELL))
     frame = gpd.GeoDataFrame(
@@ -323,7 +346,10 @@ class HtmlScan(html.parser.HTMLParser):
         for key, val in attrs:
             if key.startswith("on"):
                 self.handlers.append((tag, key))
-            if key in ("src", "href", "action", "formaction", "data", "srcset", "xlink:href") and val:
+            if (
+                key in ("src", "href", "action", "formaction", "data", "srcset", "xlink:href")
+                and val
+            ):
                 self.urls.append((tag, key, val))
         if tag == "script":
             self._script = []

@@ -17,7 +17,9 @@ def png_1x1(rgb: tuple[int, int, int]) -> bytes:
     """A valid 1x1 RGB PNG built from the PNG specification (ISO/IEC 15948 chunk layout)."""
 
     def chunk(kind: bytes, data: bytes) -> bytes:
-        return struct.pack(">I", len(data)) + kind + data + struct.pack(">I", zlib.crc32(kind + data))
+        return (
+            struct.pack(">I", len(data)) + kind + data + struct.pack(">I", zlib.crc32(kind + data))
+        )
 
     header = struct.pack(">IIBBBBB", 1, 1, 8, 2, 0, 0, 0)
     return (
@@ -52,7 +54,9 @@ class Canary:
         self.server.timeout = 5
         self.port = int(self.server.server_address[1])
         self.url = f"http://127.0.0.1:{self.port}/"
-        self.thread = threading.Thread(target=self.server.serve_forever, kwargs={"poll_interval": 0.05})
+        self.thread = threading.Thread(
+            target=self.server.serve_forever, kwargs={"poll_interval": 0.05}
+        )
 
     def __enter__(self) -> Canary:
         self.thread.start()

@@ -69,8 +69,9 @@ def test_sd_floor_case() -> None:
     # no floor and a flat baseline: undefined -> NaN, no alarm, with a reason
     wk = aberration_this_week([1.0] * 7 + [1.5], sd_floor=0.0)
     assert np.isnan(wk.c1.values[0]) and not wk.c1.alarms[0]
-    assert wk.c1.reasons == ("C1 not computed: the baseline weeks are all equal and no SD "
-                             "floor is set.",)
+    assert wk.c1.reasons == (
+        "C1 not computed: the baseline weeks are all equal and no SD floor is set.",
+    )
 
 
 def test_floor_does_not_change_values_when_sd_is_larger() -> None:
@@ -103,8 +104,9 @@ def test_vectorised_over_districts_matches_single_series() -> None:
     # an earlier week via week_index
     wk9 = aberration_this_week(y, week_index=9, sd_floor=1.0)
     assert wk9.c1.values[0] == pytest.approx(7.8984, abs=TOL4)
-    assert wk9.c3.reasons[0] == ("C3 not computed: 9 week(s) of history before this week, "
-                                 "11 needed (C2 for weeks t-2 to t).")
+    assert wk9.c3.reasons[0] == (
+        "C3 not computed: 9 week(s) of history before this week, 11 needed (C2 for weeks t-2 to t)."
+    )
     # series form keeps the 2-D shape
     assert aberration_series(y, sd_floor=1.0).c1.shape == (3, 13)
 
@@ -120,8 +122,9 @@ def test_missing_baseline_weeks() -> None:
     y[7] = np.nan
     wk = aberration_this_week(y, sd_floor=1.0)
     assert np.isnan(wk.c1.values[0]) and not wk.c1.alarms[0]
-    assert wk.c1.reasons[0] == ("C1 not computed: 4 of the 7 baseline weeks reported, "
-                                "at least 5 needed.")
+    assert wk.c1.reasons[0] == (
+        "C1 not computed: 4 of the 7 baseline weeks reported, at least 5 needed."
+    )
     # strict Hutwagner setting: all 7 needed
     y2 = Y81[:10].copy()
     y2[4] = np.nan
@@ -132,8 +135,10 @@ def test_short_history_reason() -> None:
     wk = aberration_this_week(Y81[:8], sd_floor=1.0)
     assert wk.c1.reasons == ("",)
     assert np.isnan(wk.c2.values[0])
-    assert wk.c2.reasons[0] == ("C2 not computed: 7 week(s) of history before this week, 9 "
-                                "needed (baseline weeks t-9 to t-3).")
+    assert wk.c2.reasons[0] == (
+        "C2 not computed: 7 week(s) of history before this week, 9 "
+        "needed (baseline weeks t-9 to t-3)."
+    )
 
 
 def test_results_are_read_only() -> None:

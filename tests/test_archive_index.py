@@ -64,7 +64,9 @@ class _Links(html.parser.HTMLParser):
     def handle_starttag(self, tag: str, attrs: list[tuple[str, str | None]]) -> None:
         for name, value in attrs:
             if name in ("href", "src") and value:
-                (self.external if "://" in value or value.startswith("//") else self.links).append(value)
+                (self.external if "://" in value or value.startswith("//") else self.links).append(
+                    value
+                )
 
 
 def test_every_build_refreshes_the_index_with_both_versions(archive: Path) -> None:
@@ -98,8 +100,12 @@ def test_the_comparison_names_the_corrected_district_and_changed_sentences(archi
     changed = {(where.split()[0], field) for where, field, _, _ in c.figures}
     assert (CORRECTED, "ILI visits") in changed and (CORRECTED, "ILI %") in changed
     assert ("jurisdiction", "ili visits") in changed
-    old_visits = next(o for w, f, o, n in c.figures if w.startswith(CORRECTED) and f == "ILI visits")
-    new_visits = next(n for w, f, o, n in c.figures if w.startswith(CORRECTED) and f == "ILI visits")
+    old_visits = next(
+        o for w, f, o, n in c.figures if w.startswith(CORRECTED) and f == "ILI visits"
+    )
+    new_visits = next(
+        n for w, f, o, n in c.figures if w.startswith(CORRECTED) and f == "ILI visits"
+    )
     assert int(new_visits) == int(old_visits) + 30
     assert any(kind == "removed" for kind, _ in c.sentences)
     assert any(kind == "added" for kind, _ in c.sentences)
@@ -137,9 +143,12 @@ DRIVER = shutil.which("chromedriver")
 
 
 @pytest.mark.skipif(
-    not (CHROMIUM and DRIVER), reason="Chromium and ChromeDriver are not installed (.ci/run installs them)"
+    not (CHROMIUM and DRIVER),
+    reason="Chromium and ChromeDriver are not installed (.ci/run installs them)",
 )
-def test_in_a_real_browser_links_work_the_table_sorts_and_the_console_is_clean(archive: Path) -> None:
+def test_in_a_real_browser_links_work_the_table_sorts_and_the_console_is_clean(
+    archive: Path,
+) -> None:
     webdriver = pytest.importorskip("selenium.webdriver")
     from selenium.webdriver.common.by import By
 
@@ -153,11 +162,15 @@ def test_in_a_real_browser_links_work_the_table_sorts_and_the_console_is_clean(a
     try:
         driver.get((archive / INDEX_FILE).as_uri())
         table = driver.find_element(By.ID, "archive-table")
-        versions = [c.text for c in table.find_elements(By.CSS_SELECTOR, "tbody tr td:nth-child(3)")]
+        versions = [
+            c.text for c in table.find_elements(By.CSS_SELECTOR, "tbody tr td:nth-child(3)")
+        ]
         assert versions == ["v2", "v1"]
         heading = table.find_element(By.XPATH, ".//th[normalize-space()='Version']")
         heading.click()
-        versions = [c.text for c in table.find_elements(By.CSS_SELECTOR, "tbody tr td:nth-child(3)")]
+        versions = [
+            c.text for c in table.find_elements(By.CSS_SELECTOR, "tbody tr td:nth-child(3)")
+        ]
         assert versions == ["v1", "v2"] and heading.get_attribute("aria-sort") == "ascending"
         heading.click()
         assert heading.get_attribute("aria-sort") == "descending"

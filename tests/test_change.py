@@ -47,7 +47,9 @@ def test_newcombe_1998b_examples(
     t = _row(x1, n1, x0, n0)
     assert float(t.diff_pp[0]) == pytest.approx(diff, abs=1e-12)
     assert 100 * float(t.relative[0]) == pytest.approx(rel, abs=1e-9)
-    assert round(float(t.p_value[0]), 6) == p  # pooled z p [LIB statsmodels, docs/methods.md section 3]
+    assert (
+        round(float(t.p_value[0]), 6) == p
+    )  # pooled z p [LIB statsmodels, docs/methods.md section 3]
     assert (round(float(t.low_pp[0]) / 100, 4), round(float(t.high_pp[0]) / 100, 4)) == ci
 
 
@@ -202,5 +204,7 @@ def test_class_follows_the_printed_interval_when_test_and_interval_disagree() ->
     # confint_proportions_2indep(method="newcomb")], which includes 0: no class (docs/methods.md section 3).
     t = _row(4, 20, 0, 20, min_change_pp=0.0)
     assert t.p_value[0] == pytest.approx(0.035015, abs=1e-6)
-    assert t.low_pp[0] == pytest.approx(-0.0509127, abs=1e-6) and t.high_pp[0] == pytest.approx(41.60174, abs=1e-4)
+    assert t.low_pp[0] == pytest.approx(-0.0509127, abs=1e-6) and t.high_pp[0] == pytest.approx(
+        41.60174, abs=1e-4
+    )
     assert t.classes == (ChangeClass.SIMILAR,)

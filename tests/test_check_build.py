@@ -204,7 +204,9 @@ def test_check_refuses_what_build_refuses_for_the_same_reason(case: Case, tmp_pa
     extra = [a for a in extra if a != "--archive"]
     today = extra[extra.index("--today") + 1] if "--today" in extra else TODAY.isoformat()
     config = str(week.config_path)
-    check_code, check_out, check_err = run_cli(["check", "--config", config, "--json", "--today", today])
+    check_code, check_out, check_err = run_cli(
+        ["check", "--config", config, "--json", "--today", today]
+    )
     build_args = ["build", "--config", config, "--today", today, "--quiet"]
     if not archive:
         build_args.append("--no-archive")

@@ -100,7 +100,11 @@ def test_exit_codes_match_the_documented_tables(monkeypatch: pytest.MonkeyPatch)
     table = dict(re.findall(r"^(\d)\s{2,}(\S.*)$", cli.__doc__ or "", flags=re.MULTILINE))
     assert set(table) == {"0", "1", "2", "3", "4", "5"}
     assert (cli.EXIT_OK, cli.EXIT_BLOCKED, cli.EXIT_USAGE, cli.EXIT_DELIVERY, cli.EXIT_HELD) == (
-        0, 1, 2, 3, 4
+        0,
+        1,
+        2,
+        3,
+        4,
     )
     assert cli.EXIT_ARCHIVED == 5 and table["5"].startswith("already archived")
     assert table["0"] == "done" and table["1"].startswith("blocked")
@@ -419,7 +423,9 @@ def test_build_today_sets_the_day_of_the_future_week_rule(
     # the demo week 2026-W47 runs 22 to 28 November 2026 (MMWR); a build dated 21 November
     # sees it as a future week and is blocked, one dated the Monday after builds it
     cfg = write_config(tmp_path, output__pdf=False)
-    code, out, err = run(capsys, "build", "--config", str(cfg), "--no-archive", "--today", "2026-11-21")
+    code, out, err = run(
+        capsys, "build", "--config", str(cfg), "--no-archive", "--today", "2026-11-21"
+    )
     assert code == cli.EXIT_BLOCKED
     assert "week-future" in err and "2026-W47" in err
     assert not (tmp_path / "out" / "report.html").exists()

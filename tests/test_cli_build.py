@@ -88,7 +88,9 @@ def test_batch_exit_code_puts_faults_before_already_archived(
 def test_batch_reports_an_archived_week_with_its_own_status_and_its_week(tmp_path: Path) -> None:
     north = demo_config_file(tmp_path / "north", report__jurisdiction="North", output__pdf=False)
     south = demo_config_file(
-        tmp_path / "south", report__jurisdiction="South", output__pdf=False,
+        tmp_path / "south",
+        report__jurisdiction="South",
+        output__pdf=False,
         analysis__permutations=99,
     )
     v1 = _archived(tmp_path / "north", "North")

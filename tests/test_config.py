@@ -25,7 +25,10 @@ def test_demo_config_loads_and_resolves_paths() -> None:
     [
         ({"analysis": {"permutation": 999}}, "unknown key 'permutation' in \\[analysis\\]"),
         ({"colour": 1}, "unknown key 'colour' in the top level"),
-        ({"input": {"columns": {"distrcit": "x"}}}, "unknown key 'distrcit' in \\[input.columns\\]"),
+        (
+            {"input": {"columns": {"distrcit": "x"}}},
+            "unknown key 'distrcit' in \\[input.columns\\]",
+        ),
         ({"analysis": {"permutations": "999"}}, "analysis.permutations must be a whole number"),
         ({"analysis": {"weights": "bishop"}}, "analysis.weights = 'bishop' is not allowed"),
         ({"analysis": {"alpha": 1.5}}, "analysis.alpha must be between 0 and 1"),
@@ -37,7 +40,10 @@ def test_demo_config_loads_and_resolves_paths() -> None:
         ({"input": {"delimiter": ";;"}}, "one character"),
         ({"output": {"pdf": "yes"}}, "true or false"),
         ({"input": {"id_zero_pad": 0}}, "input.id_zero_pad must be 1..20"),
-        ({"input": {"date_format": "%m/%Y"}}, "input.date_format = '%m/%Y' does not give a full date"),
+        (
+            {"input": {"date_format": "%m/%Y"}},
+            "input.date_format = '%m/%Y' does not give a full date",
+        ),
         # two week sources: both keys are named
         (
             {"input": {"columns": {"week": "epi_week", "week_end": "week_ending"}}},

@@ -396,7 +396,9 @@ def reconstruct(folders: Iterable[Path], truth: Truth) -> list[tuple[str, str, i
     return claims
 
 
-def leaks(claims: Iterable[tuple[str, str, int, str]], truth: Truth, withheld: Mapping[str, set[str]]) -> list[str]:
+def leaks(
+    claims: Iterable[tuple[str, str, int, str]], truth: Truth, withheld: Mapping[str, set[str]]
+) -> list[str]:
     """The claims that hit a withheld count exactly."""
     out = []
     for week, d, value, how in claims:
@@ -418,7 +420,9 @@ def withheld_cells(folders: Iterable[Path]) -> dict[str, set[str]]:
     return out
 
 
-def text_leaks(folder: Path, truth: Truth, held: Mapping[str, set[str]], names: Mapping[str, str]) -> list[str]:
+def text_leaks(
+    folder: Path, truth: Truth, held: Mapping[str, set[str]], names: Mapping[str, str]
+) -> list[str]:
     """Withheld districts' percentages or intervals printed beside their name in any output."""
     out = []
     texts = published_texts(folder)
@@ -448,9 +452,12 @@ def test_demo_withholds_042_and_a_complement(demo_build) -> None:  # type: ignor
     assert d.this_week.rule_of("042") is Rule.FEW_VISITS
     assert d.this_week.n_primary == 1 and d.this_week.n_complementary >= 1
     assert group_is_protected(
-        [Cell(str(r.district_id), int(r.ili_visits), int(r.total_visits))
-         for r in result.analysis.unprotected_table.itertuples()],
-        d.this_week.ids, d.rules,
+        [
+            Cell(str(r.district_id), int(r.ili_visits), int(r.total_visits))
+            for r in result.analysis.unprotected_table.itertuples()
+        ],
+        d.this_week.ids,
+        d.rules,
     )
     assert "withheld to protect small counts" in result.context.disclosure_note
 
@@ -469,7 +476,13 @@ def test_attacker_cannot_recover_any_withheld_count_in_the_demo(demo_build) -> N
     # Wilson intervals of both (the attack is not skipped because a file changed shape)
     assert {"printed count", "Wilson interval", "HTML table count", "HTML interval"} <= hows, hows
     assert leaks(claims, truth, held) == []
-    names = dict(zip(result.analysis.table["district_id"], result.analysis.table["district_name"], strict=True))
+    names = dict(
+        zip(
+            result.analysis.table["district_id"],
+            result.analysis.table["district_name"],
+            strict=True,
+        )
+    )
     assert text_leaks(bundle, truth, held, names) == []
 
 
@@ -488,13 +501,17 @@ def test_attacker_finds_the_old_leak(demo_build, tmp_path: Path) -> None:  # typ
     rows = []
     for rec in table.to_dict("records"):
         alone = rec["district_id"] == "042"
-        rows.append({
-            "district_id": rec["district_id"], "suppressed": alone, "prior_suppressed": False,
-            "ili_visits": None if alone else int(rec["ili_visits"]),
-            "total_visits": int(rec["total_visits"]),
-            "ili_percent": None if alone else rec["ili_percent"],
-            "prior_ili_percent": rec["prior_ili_percent"],
-        })
+        rows.append(
+            {
+                "district_id": rec["district_id"],
+                "suppressed": alone,
+                "prior_suppressed": False,
+                "ili_visits": None if alone else int(rec["ili_visits"]),
+                "total_visits": int(rec["total_visits"]),
+                "ili_percent": None if alone else rec["ili_percent"],
+                "prior_ili_percent": rec["prior_ili_percent"],
+            }
+        )
     doc["districts"] = rows
     (old / "results.json").write_text(json.dumps(doc), encoding="utf-8")
     (old / "results.csv").write_text("district_id\n", encoding="utf-8")
@@ -518,7 +535,9 @@ def test_internal_mode_keeps_true_values_only_in_the_internal_file(tmp_path: Pat
     result = pipeline.build(config, today=TODAY)
     names = {p.name for p in result.outputs}
     assert "internal-results-UNSUPPRESSED.csv" in names
-    internal = (result.bundle.path / "internal-results-UNSUPPRESSED.csv").read_text(encoding="utf-8-sig")
+    internal = (result.bundle.path / "internal-results-UNSUPPRESSED.csv").read_text(
+        encoding="utf-8-sig"
+    )
     row = next(r for r in csv.DictReader(io.StringIO(internal)) if r["district_id"] == "042")
     assert (row["ili_visits"], row["withheld_rule"]) == ("1", "few-visits")  # demo_inputs/README.md
     public = (result.bundle.path / "results.csv").read_text(encoding="utf-8-sig")
@@ -561,8 +580,15 @@ def generated(tmp_path_factory: pytest.TempPathFactory):  # type: ignore[no-unty
     def both(rows: list[list[str]]) -> list[list[str]]:
         return _edit(SMALL_NOW, "2026-W47")(_edit(SMALL_BEFORE, "2026-W46")(rows))
 
-    week = make_week(folder, cols=6, rows=5, island=True, edit_table=both,
-                     edit_prior=_edit(SMALL_BEFORE, "2026-W46"), pdf=True)
+    week = make_week(
+        folder,
+        cols=6,
+        rows=5,
+        island=True,
+        edit_table=both,
+        edit_prior=_edit(SMALL_BEFORE, "2026-W46"),
+        pdf=True,
+    )
     # last week's report, from last week's extract (W40 to W46)
     del week.raw["input"]["prior_table"]
     week.write_config(input={"table": week.prior.name})
@@ -611,18 +637,27 @@ def test_attacker_cannot_recover_any_withheld_count_in_the_generated_case(genera
         assert text_leaks(result.bundle.path, truth, held, names) == []
 
 
-def _publication(folder: Path, week: str, prior_week: str, total: int,
-                 rows: Mapping[str, tuple[int, int] | None]) -> Path:
+def _publication(
+    folder: Path, week: str, prior_week: str, total: int, rows: Mapping[str, tuple[int, int] | None]
+) -> Path:
     """A minimal publication: results.json / results.csv with counts shown or withheld (None)."""
     folder.mkdir(parents=True)
     districts = [
-        {"district_id": d, "suppressed": cell is None, "prior_suppressed": False,
-         "ili_visits": None if cell is None else cell[0],
-         "total_visits": None if cell is None else cell[1]}
+        {
+            "district_id": d,
+            "suppressed": cell is None,
+            "prior_suppressed": False,
+            "ili_visits": None if cell is None else cell[0],
+            "total_visits": None if cell is None else cell[1],
+        }
         for d, cell in rows.items()
     ]
-    doc = {"week": week, "prior_week": prior_week, "jurisdiction": {"ili_visits": total},
-           "districts": districts}
+    doc = {
+        "week": week,
+        "prior_week": prior_week,
+        "jurisdiction": {"ili_visits": total},
+        "districts": districts,
+    }
     (folder / "results.json").write_text(json.dumps(doc), encoding="utf-8")
     (folder / "results.csv").write_text("district_id\n", encoding="utf-8")
     (folder / "report.html").write_text("<html></html>", encoding="utf-8")
@@ -634,20 +669,34 @@ def test_attacker_uses_a_second_version(tmp_path: Path) -> None:
     that no longer keeps them withheld shows C unchanged, and v1's total minus v1's shown
     counts minus C gives A. The rule that keeps earlier withheld cells prevents it."""
     truth_v1 = {"W47": {"A": (1, 27), "B": (20, 900), "C": (9, 300), "D": (30, 1200)}}
-    v1 = _publication(tmp_path / "v1", "W47", "W46", 60,
-                      {"A": None, "B": (20, 900), "C": None, "D": (30, 1200)})
-    leaky = _publication(tmp_path / "v2", "W47", "W46", 67,
-                         {"A": (8, 120), "B": (20, 900), "C": (9, 300), "D": (30, 1200)})
+    v1 = _publication(
+        tmp_path / "v1", "W47", "W46", 60, {"A": None, "B": (20, 900), "C": None, "D": (30, 1200)}
+    )
+    leaky = _publication(
+        tmp_path / "v2",
+        "W47",
+        "W46",
+        67,
+        {"A": (8, 120), "B": (20, 900), "C": (9, 300), "D": (30, 1200)},
+    )
     found = leaks(reconstruct([v1, leaky], truth_v1), truth_v1, {"W47": {"A", "C"}})
     assert found == [
         "W47 A = 1 (" + str(v1) + ": total minus shown and counts of another publication)",
         "W47 C = 9 (" + str(leaky) + ": printed count)",
     ]
-    kept = protect_group([Cell("A", 8, 120), Cell("B", 20, 900), Cell("C", 9, 300),
-                          Cell("D", 30, 1200)], RULES, label="W47", carried=["A", "C"])
-    safe = _publication(tmp_path / "v2-kept", "W47", "W46", 67,
-                        {d: (None if d in kept.ids else truth_v1["W47"][d])
-                         for d in ("A", "B", "C", "D")})
+    kept = protect_group(
+        [Cell("A", 8, 120), Cell("B", 20, 900), Cell("C", 9, 300), Cell("D", 30, 1200)],
+        RULES,
+        label="W47",
+        carried=["A", "C"],
+    )
+    safe = _publication(
+        tmp_path / "v2-kept",
+        "W47",
+        "W46",
+        67,
+        {d: (None if d in kept.ids else truth_v1["W47"][d]) for d in ("A", "B", "C", "D")},
+    )
     assert leaks(reconstruct([v1, safe], truth_v1), truth_v1, {"W47": {"A", "C"}}) == []
 
 
@@ -657,15 +706,21 @@ def test_reissue_would_show_a_cell_version_1_withheld(generated) -> None:  # typ
     _, _, v1, v2, _, truth_v2 = generated
     afresh = protect_group(
         [Cell(d, x, n) for d, (x, n) in truth_v2["2026-W47"].items()],
-        v2.analysis.disclosure.rules, label="2026-W47",
+        v2.analysis.disclosure.rules,
+        label="2026-W47",
     )
     assert not v1.analysis.disclosure.this_week.ids <= afresh.ids
     assert v1.analysis.disclosure.this_week.ids <= v2.analysis.disclosure.this_week.ids
 
 
 @pytest.mark.parametrize(
-    "name", ["internal-results-UNSUPPRESSED.csv", "internal-quality-annex.pdf", "report-unsuppressed.csv",
-             "figures/internal-map.png"],
+    "name",
+    [
+        "internal-results-UNSUPPRESSED.csv",
+        "internal-quality-annex.pdf",
+        "report-unsuppressed.csv",
+        "figures/internal-map.png",
+    ],
 )
 def test_mail_refuses_internal_files(name: str) -> None:
     import datetime as dt
@@ -675,8 +730,13 @@ def test_mail_refuses_internal_files(name: str) -> None:
 
     def message(attachment: str):  # type: ignore[no-untyped-def]
         return build_message(
-            subject="s", body="b", sender="a@example.org", recipients=["b@example.org"],
-            reply_to=None, attachments=[(attachment, b"x", "text/csv")], message_id_seed="seed",
+            subject="s",
+            body="b",
+            sender="a@example.org",
+            recipients=["b@example.org"],
+            reply_to=None,
+            attachments=[(attachment, b"x", "text/csv")],
+            message_id_seed="seed",
             date=dt.datetime(2026, 11, 30, tzinfo=dt.UTC),
         )
 
@@ -697,8 +757,9 @@ def test_total_is_withheld_when_nothing_else_protects(tmp_path: Path) -> None:
     def edit(rows: list[list[str]]) -> list[list[str]]:
         return _edit(small, "2026-W47")(_edit(small, "2026-W46")(rows))
 
-    week = make_week(tmp_path, cols=2, rows=1, island=False, edit_table=edit, edit_prior=edit,
-                     pdf=True)
+    week = make_week(
+        tmp_path, cols=2, rows=1, island=False, edit_table=edit, edit_prior=edit, pdf=True
+    )
     result = pipeline.build(week.config(), today=TODAY)
     d = result.analysis.disclosure
     assert d.this_week.total_withheld and d.prior_week.total_withheld
@@ -718,14 +779,36 @@ def test_findings_about_withheld_districts_are_redacted() -> None:
     from sitrep.model import Finding, Severity, ValidationReport
     from sitrep.render.results import redact_findings
 
-    report = ValidationReport((
-        Finding(Severity.WARNING, "revision-large", "district 042, 2026-W46 was revised: ILI visits 3 -> 1",
-                "extract.csv", 291, "ili_visits", "042", "3 -> 1"),
-        Finding(Severity.WARNING, "revision-summary", "largest change (district 042, 2026-W45: 3.7% -> 2.0%)",
-                "extract.csv"),
-        Finding(Severity.WARNING, "value-spike", "district 0421 rose", "extract.csv", 12, "ili_visits",
-                "0421", "9"),
-    ))
+    report = ValidationReport(
+        (
+            Finding(
+                Severity.WARNING,
+                "revision-large",
+                "district 042, 2026-W46 was revised: ILI visits 3 -> 1",
+                "extract.csv",
+                291,
+                "ili_visits",
+                "042",
+                "3 -> 1",
+            ),
+            Finding(
+                Severity.WARNING,
+                "revision-summary",
+                "largest change (district 042, 2026-W45: 3.7% -> 2.0%)",
+                "extract.csv",
+            ),
+            Finding(
+                Severity.WARNING,
+                "value-spike",
+                "district 0421 rose",
+                "extract.csv",
+                12,
+                "ili_visits",
+                "0421",
+                "9",
+            ),
+        )
+    )
     out = redact_findings(report, {"042"})
     assert [f.value for f in out.findings] == [None, None, "9"]
     for f in out.findings[:2]:
@@ -741,8 +824,12 @@ def test_old_key_analysis_keep_suppressed_values_names_its_new_place() -> None:
 
     with pytest.raises(ConfigError, match=r"moved: set keep_suppressed_values in \[output\]"):
         config_from_dict({"analysis": {"keep_suppressed_values": True}})
-    config = config_from_dict({"analysis": {"min_count": 3, "suppress_zero": True},
-                               "output": {"keep_suppressed_values": True}})
+    config = config_from_dict(
+        {
+            "analysis": {"min_count": 3, "suppress_zero": True},
+            "output": {"keep_suppressed_values": True},
+        }
+    )
     assert (config.analysis.min_count, config.analysis.suppress_zero) == (3, True)
     assert config.output.keep_suppressed_values
     with pytest.raises(ConfigError, match="min_count must not be negative"):

@@ -59,10 +59,14 @@ def test_the_unedited_draft_passes_as_markdown_and_as_docx(bundle: Path) -> None
         assert check_draft(bundle, read_edited_draft(bundle / name)) == [], name
 
 
-def test_a_reworded_sentence_with_the_same_facts_passes(bundle: Path, draft: str, tmp_path: Path) -> None:
+def test_a_reworded_sentence_with_the_same_facts_passes(
+    bundle: Path, draft: str, tmp_path: Path
+) -> None:
     this_week = next(p for p in draft.split("\n\n") if p.startswith("In week"))
     edited = _replace_once(draft, this_week, this_week.replace("In week", "During week", 1))
-    edited = edited.replace("- Figures are provisional:", "- Please note that figures are provisional:", 1)
+    edited = edited.replace(
+        "- Figures are provisional:", "- Please note that figures are provisional:", 1
+    )
     assert edited != draft
     assert _check(bundle, edited, tmp_path) == []
 
@@ -80,7 +84,9 @@ def test_a_changed_count_is_found(bundle: Path, draft: str, tmp_path: Path) -> N
     m = re.search(r"(\d{1,3}),(\d{3}) visits", draft)
     assert m is not None
     edited = _replace_once(draft, m.group(0), f"{m.group(1)},{int(m.group(2)) + 100:03d} visits")
-    assert ("figure-changed", _paragraph_of(edited, "visits are")) in _check(bundle, edited, tmp_path)
+    assert ("figure-changed", _paragraph_of(edited, "visits are")) in _check(
+        bundle, edited, tmp_path
+    )
 
 
 def test_swapped_districts_are_found(bundle: Path, draft: str, tmp_path: Path) -> None:
@@ -93,7 +99,9 @@ def test_swapped_districts_are_found(bundle: Path, draft: str, tmp_path: Path) -
     assert rules.count(("district-figure", _paragraph_of(edited, swapped[:20]))) == 2
 
 
-def test_a_rounding_that_reverses_the_order_is_found(bundle: Path, draft: str, tmp_path: Path) -> None:
+def test_a_rounding_that_reverses_the_order_is_found(
+    bundle: Path, draft: str, tmp_path: Path
+) -> None:
     results = json.loads((bundle / "results.json").read_text())
     value = {r["district_name"]: r["ili_percent"] for r in results["districts"]}
     names = "|".join(re.escape(n) for n in sorted(value, key=len, reverse=True))
@@ -105,7 +113,8 @@ def test_a_rounding_that_reverses_the_order_is_found(bundle: Path, draft: str, t
     a, b, d1, d2 = next(
         (x, y, d1, d2)
         for (x, _), (y, _) in itertools.pairwise(pairs)
-        for d1 in (2, 1, 0) for d2 in (2, 1, 0)
+        for d1 in (2, 1, 0)
+        for d2 in (2, 1, 0)
         if round(value[x], d1) < round(value[y], d2)
     )
     shown = {a: f"{value[a]:.{d1}f}", b: f"{value[b]:.{d2}f}"}
@@ -132,12 +141,16 @@ def test_a_reversed_trend_word_is_found(bundle: Path, draft: str, tmp_path: Path
     this_week = next(p for p in draft.split("\n\n") if p.startswith("In week"))
     m = re.search(r"\b(rise|increase|fall|decrease)\b", this_week)
     assert m is not None, "the demo week should have a direction word"
-    opposite = {"rise": "fall", "increase": "decrease", "fall": "rise", "decrease": "increase"}[m.group(1)]
+    opposite = {"rise": "fall", "increase": "decrease", "fall": "rise", "decrease": "increase"}[
+        m.group(1)
+    ]
     edited = _replace_once(draft, this_week, this_week.replace(m.group(0), opposite, 1))
     assert ("trend-reversed", _paragraph_of(edited, "In week")) in _check(bundle, edited, tmp_path)
 
 
-def test_a_withheld_district_with_a_figure_is_found(bundle: Path, draft: str, tmp_path: Path) -> None:
+def test_a_withheld_district_with_a_figure_is_found(
+    bundle: Path, draft: str, tmp_path: Path
+) -> None:
     results = json.loads((bundle / "results.json").read_text())
     withheld = next(r["district_name"] for r in results["districts"] if r["suppressed"])
     highest = next(p for p in draft.split("\n\n") if PAIR.search(p))
@@ -150,9 +163,13 @@ def test_a_withheld_district_with_a_figure_is_found(bundle: Path, draft: str, tm
     assert ("district-not-named", paragraph) in rules
 
 
-def test_a_district_the_report_does_not_name_is_found(bundle: Path, draft: str, tmp_path: Path) -> None:
+def test_a_district_the_report_does_not_name_is_found(
+    bundle: Path, draft: str, tmp_path: Path
+) -> None:
     results = json.loads((bundle / "results.json").read_text())
-    rows = [r for r in results["districts"] if not r["suppressed"] and r["district_name"] not in draft]
+    rows = [
+        r for r in results["districts"] if not r["suppressed"] and r["district_name"] not in draft
+    ]
     low = min(rows, key=lambda r: r["ili_percent"])
     sentence = f"{low['district_name']} ({low['ili_percent']:.2f}%) was among the highest."
     edited = draft.replace("\n\n## Compared", f" {sentence}\n\n## Compared", 1)

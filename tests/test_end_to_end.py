@@ -17,9 +17,19 @@ from conftest import DEMO, ROOT, TODAY
 
 pytestmark = pytest.mark.slow
 
-OUTPUTS = ("report.html", "report.pdf", "draft.md", "draft.docx", "results.csv", "results.json",
-           "results-dictionary.csv",
-           "validation.json", "manifest.json", "email.txt", "internal-data-quality.csv")
+OUTPUTS = (
+    "report.html",
+    "report.pdf",
+    "draft.md",
+    "draft.docx",
+    "results.csv",
+    "results.json",
+    "results-dictionary.csv",
+    "validation.json",
+    "manifest.json",
+    "email.txt",
+    "internal-data-quality.csv",
+)
 FORBIDDEN = re.compile(r"\b(nan|NaN|inf|Infinity|None)\b|\{\{|\}\}")
 
 
@@ -64,10 +74,16 @@ def test_key_message_numbers_match_the_results(demo_build) -> None:  # type: ign
     assert float(shown.group(1)) == round(j["ili_percent"], 1)
     ci = re.search(r"95% confidence interval (\d+\.\d)–(\d+\.\d)%", level)
     assert ci is not None
-    assert (float(ci.group(1)), float(ci.group(2))) == (round(j["ci_low"], 1), round(j["ci_high"], 1))
+    assert (float(ci.group(1)), float(ci.group(2))) == (
+        round(j["ci_low"], 1),
+        round(j["ci_high"], 1),
+    )
     counts = re.search(r"the (\d+) of (\d+) districts", level)
     assert counts is not None
-    assert (int(counts.group(1)), int(counts.group(2))) == (j["districts_reporting"], j["districts"])
+    assert (int(counts.group(1)), int(counts.group(2))) == (
+        j["districts_reporting"],
+        j["districts"],
+    )
     prior = re.search(r"(\d+\.\d)% in week 46", level)
     assert prior is not None and float(prior.group(1)) == round(j["prior_ili_percent"], 1)
     change = re.search(r"([+−±])(\d+\.\d) percentage points \(95% confidence interval", level)
@@ -93,7 +109,9 @@ def test_no_placeholder_or_missing_number_anywhere(demo_build) -> None:  # type:
         text = _read(result, name).decode("utf-8")
         assert not FORBIDDEN.search(text), (name, FORBIDDEN.search(text))
     html_text = _read(result, "report.html").decode("utf-8")
-    visible = re.sub(r"<script.*?</script>|<style.*?</style>|data:[^\"']+", "", html_text, flags=re.S)
+    visible = re.sub(
+        r"<script.*?</script>|<style.*?</style>|data:[^\"']+", "", html_text, flags=re.S
+    )
     assert not FORBIDDEN.search(visible), FORBIDDEN.search(visible)
     pdf = _pdf_text(_read(result, "report.pdf"))
     assert not FORBIDDEN.search(pdf), FORBIDDEN.search(pdf)
@@ -129,7 +147,9 @@ def test_html_is_self_contained_and_accessible(demo_build) -> None:  # type: ign
     assert parser.imgs_without_alt == 0
     assert '<html lang="en">' in text
     headings = re.findall(r"<h([1-6])", text)
-    assert headings[0] == "1" and all(int(b) - int(a) <= 1 for a, b in zip(headings, headings[1:], strict=False))
+    assert headings[0] == "1" and all(
+        int(b) - int(a) <= 1 for a, b in zip(headings, headings[1:], strict=False)
+    )
     # every district is in the HTML table; the ampersand name is escaped, not raw
     assert text.count("<tr class=") == 48
     assert "Skelvane &amp; Orrowby" in text
@@ -215,7 +235,9 @@ def test_manifest_records_inputs_seed_and_versions(demo_build) -> None:  # type:
     assert manifest["seed"] == 12345 and manifest["permutations"] == 9999
     assert manifest["week_system"] == "mmwr"
     table = next(i for i in manifest["inputs"] if i["role"] == "table")
-    assert table["sha256"] == hashlib.sha256((DEMO / "extract_2026-W47.csv").read_bytes()).hexdigest()
+    assert (
+        table["sha256"] == hashlib.sha256((DEMO / "extract_2026-W47.csv").read_bytes()).hexdigest()
+    )
     assert manifest["versions"]["esda"].startswith("2.9")
     pdf = hashlib.sha256(_read(result, "report.pdf")).hexdigest()
     assert manifest["outputs"]["report.pdf"]["sha256"] == pdf
@@ -289,11 +311,16 @@ def test_two_processes_give_byte_identical_bundles(tmp_path: Path) -> None:
     for seed, name in (("1", "a"), ("4242", "b")):
         env = {**os.environ, "PYTHONHASHSEED": seed}
         env.pop("SOURCE_DATE_EPOCH", None)
-        subprocess.run([sys.executable, "-c", script, str(tmp_path / name)], check=True, cwd=ROOT, env=env)
+        subprocess.run(
+            [sys.executable, "-c", script, str(tmp_path / name)], check=True, cwd=ROOT, env=env
+        )
         # the bundles, not the archive's index page beside them: it records when it was checked
-        hashes.append({
-            k: v for k, v in _tree_hashes(tmp_path / name / "archive").items()
-            if not k.startswith(("index.html", "_compare/"))
-        })
+        hashes.append(
+            {
+                k: v
+                for k, v in _tree_hashes(tmp_path / name / "archive").items()
+                if not k.startswith(("index.html", "_compare/"))
+            }
+        )
     assert hashes[0] == hashes[1]
     assert any(k.endswith("report.pdf") for k in hashes[0])

@@ -8,15 +8,26 @@ from sitrep.model import Finding, Severity, ValidationReport
 
 
 def cell(rule: str, line: int, column: str = "ili_visits", file: str = "t.csv") -> Finding:
-    return Finding(Severity.ERROR, rule, f"bad value on {line}", file=file, line=line,
-                   column=column, district_id=f"{line:03d}", value=str(line))
+    return Finding(
+        Severity.ERROR,
+        rule,
+        f"bad value on {line}",
+        file=file,
+        line=line,
+        column=column,
+        district_id=f"{line:03d}",
+        value=str(line),
+    )
 
 
 def test_one_group_per_rule_file_and_column_in_first_seen_order() -> None:
     report = ValidationReport(
         tuple(cell("cell-not-number", k) for k in range(2, 12))
-        + (cell("cell-not-number", 3, column="total_visits"), cell("cell-not-number", 4, file="p.csv"),
-           cell("count-negative", 5))
+        + (
+            cell("cell-not-number", 3, column="total_visits"),
+            cell("cell-not-number", 4, file="p.csv"),
+            cell("count-negative", 5),
+        )
     )
     groups = report.grouped()
     assert [(g.rule, g.first.file, g.first.column, g.count) for g in groups] == [
@@ -46,5 +57,8 @@ def test_group_message_gives_count_span_and_first_five_locations() -> None:
     (gappy,) = ValidationReport((cell("r", 2), cell("r", 9))).grouped()
     assert gappy.span() == "lines 2 to 9" and gappy.message().endswith("all shown]")
     (single,) = ValidationReport((cell("r", 7),)).grouped()
-    assert single.message() == "bad value on 7" and single.location() == "t.csv, line 7, column 'ili_visits'"
+    assert (
+        single.message() == "bad value on 7"
+        and single.location() == "t.csv, line 7, column 'ili_visits'"
+    )
     assert "lines" not in group.message(span=False).split(":")[0]

@@ -43,8 +43,13 @@ ROOT = Path(__file__).resolve().parents[1]
 
 def sha256sum_check(bundle: Path) -> subprocess.CompletedProcess[str]:
     """GNU coreutils' own verification of the bundle's checksum list."""
-    return subprocess.run(["sha256sum", "--check", "--strict", "manifest-sha256.txt"], cwd=bundle,
-                          capture_output=True, text=True, timeout=30)
+    return subprocess.run(
+        ["sha256sum", "--check", "--strict", "manifest-sha256.txt"],
+        cwd=bundle,
+        capture_output=True,
+        text=True,
+        timeout=30,
+    )
 
 
 def leftovers(folder: Path) -> list[Path]:
@@ -125,18 +130,22 @@ def test_h08_archive_is_complete_or_absent_and_never_overwritten(
     with pytest.raises(ArchiveExists):
         build(week)
     assert tree_hashes(bundle) == before
-    code, out, err = run_cli(["build", "--config", str(week.config_path), "--reissue",
-                              "late reports from D03"])
+    code, out, err = run_cli(
+        ["build", "--config", str(week.config_path), "--reissue", "late reports from D03"]
+    )
     assert code == 0, err
     v2 = bundle.with_name("v2")
     assert json.loads((v2 / "manifest.json").read_text())["reissue"] == {
-        "reason": "late reports from D03", "supersedes": "v1"}
+        "reason": "late reports from D03",
+        "supersedes": "v1",
+    }
     assert tree_hashes(bundle) == before
     for folder in (bundle, v2):
         check = sha256sum_check(folder)
         assert check.returncode == 0, check.stdout + check.stderr
         assert check.stdout.count(": OK") == len(
-            (folder / "manifest-sha256.txt").read_text().splitlines())
+            (folder / "manifest-sha256.txt").read_text().splitlines()
+        )
 
 
 # --------------------------------------------------------------------------- F11
@@ -145,20 +154,29 @@ def test_h08_archive_is_complete_or_absent_and_never_overwritten(
 def test_h11_mail_goes_out_only_for_a_clean_run_and_reports_refusals(tmp_path: Path) -> None:
     recorder = RecordingHandler(refuse=("director@tessaly.example",))
     with smtp_server(recorder) as port:
-        def bad(rows: list[list[str]]) -> list[list[str]]:
-            return [r[:4] + ["9999", r[5]] if r[0] == "D02" and r[2] == WEEKS[-1] else r
-                    for r in rows]
 
-        week = make_week(tmp_path / "week", edit_table=bad,
-                         config={"email": {"enabled": True, "port": port}})
+        def bad(rows: list[list[str]]) -> list[list[str]]:
+            return [
+                r[:4] + ["9999", r[5]] if r[0] == "D02" and r[2] == WEEKS[-1] else r for r in rows
+            ]
+
+        week = make_week(
+            tmp_path / "week", edit_table=bad, config={"email": {"enabled": True, "port": port}}
+        )
         # (f) an error-class finding: blocked, nothing archived, nothing sent
-        code, out, err = run_cli(["run", "--config", str(week.config_path), "--today", "2026-11-30"])
+        code, out, err = run_cli(
+            ["run", "--config", str(week.config_path), "--today", "2026-11-30"]
+        )
         assert code == 1 and "count-ili-exceeds-total" in out + err
-        assert recorder.sessions == 0 and recorder.messages == [] and tree_hashes(week.archive) == {}
+        assert (
+            recorder.sessions == 0 and recorder.messages == [] and tree_hashes(week.archive) == {}
+        )
 
         # a clean run: archived, sent once; the refused recipient is reported, not hidden
         write_csv(week.table, table_rows(week.ids, week.names, WEEKS, 4))
-        code, out, err = run_cli(["run", "--config", str(week.config_path), "--today", "2026-11-30"])
+        code, out, err = run_cli(
+            ["run", "--config", str(week.config_path), "--today", "2026-11-30"]
+        )
         assert code == 3 and "refused for director@tessaly.example" in err  # 550, RFC 5321
         assert len(recorder.messages) == 1
         assert recorder.messages[0][1] == ["epi-team@tessaly.example"]
@@ -169,7 +187,9 @@ def test_h11_mail_goes_out_only_for_a_clean_run_and_reports_refusals(tmp_path: P
         message = email.message_from_bytes(recorder.messages[0][2], policy=email.policy.default)
         assert message["Message-ID"] == record["message_id"]
         # the Monday job run again keeps reporting the refusal but sends no second copy
-        code, out, err = run_cli(["run", "--config", str(week.config_path), "--today", "2026-11-30"])
+        code, out, err = run_cli(
+            ["run", "--config", str(week.config_path), "--today", "2026-11-30"]
+        )
         assert code == 3 and "director@tessaly.example" in err and len(recorder.messages) == 1
 
     # (e) CR/LF in a configured header value is refused when the configuration is loaded
@@ -181,8 +201,21 @@ def test_h11_mail_goes_out_only_for_a_clean_run_and_reports_refusals(tmp_path: P
 # --------------------------------------------------------------------------- F12
 
 
-@pytest.mark.parametrize("name", ["../../x", "/etc/cron.d/x", "sub/../../x", "a\x00b", "..%2Fx",
-                                  "a\\b", "./x", ".hidden", "a//b", " x"])
+@pytest.mark.parametrize(
+    "name",
+    [
+        "../../x",
+        "/etc/cron.d/x",
+        "sub/../../x",
+        "a\x00b",
+        "..%2Fx",
+        "a\\b",
+        "./x",
+        ".hidden",
+        "a//b",
+        " x",
+    ],
+)
 def test_h12_output_names_that_leave_the_folder_are_refused_before_any_write(
     tmp_path: Path, name: str
 ) -> None:
@@ -192,8 +225,13 @@ def test_h12_output_names_that_leave_the_folder_are_refused_before_any_write(
     with pytest.raises(DeliveryError, match="not allowed"):
         write_outputs(folder, {"report.html": b"<p>ok</p>", name: b"payload"})
     with pytest.raises(DeliveryError, match="not allowed"):
-        write_bundle(tmp_path / "archive", "Region", "2026-W47",
-                     {"report.html": b"<p>ok</p>", name: b"payload"}, {"note": "test"})
+        write_bundle(
+            tmp_path / "archive",
+            "Region",
+            "2026-W47",
+            {"report.html": b"<p>ok</p>", name: b"payload"},
+            {"note": "test"},
+        )
     assert [p for p in tmp_path.rglob("*") if p.is_file()] == []
 
 
@@ -203,8 +241,9 @@ def escaping(tmp_path_factory: pytest.TempPathFactory) -> types.SimpleNamespace:
     folder = tmp_path_factory.mktemp("escape")
     outside = folder / "outside"
     outside.mkdir()
-    week = make_week(folder / "week", pdf=False,
-                     config={"report": {"jurisdiction": "../../../outside/Region"}})
+    week = make_week(
+        folder / "week", pdf=False, config={"report": {"jurisdiction": "../../../outside/Region"}}
+    )
     week.out.mkdir()
     (week.out / "figures").symlink_to(outside, target_is_directory=True)
     before = tree_hashes(week.out)
@@ -254,8 +293,9 @@ def test_h20_oversized_inputs_are_refused_before_parsing(
 
     monkeypatch.setattr(Path, "read_bytes", guarded)
     started = time.perf_counter()
-    code, out, err = run_cli(["check", "--config", str(week.config_path), "--table", str(big),
-                              "--json"])
+    code, out, err = run_cli(
+        ["check", "--config", str(week.config_path), "--table", str(big), "--json"]
+    )
     elapsed = time.perf_counter() - started
     doc = json.loads(out)
     assert code == 1 and [f["rule"] for f in doc["findings"]] == ["file-too-large"]
@@ -271,8 +311,10 @@ def test_h20_oversized_inputs_are_refused_before_parsing(
 def test_h20_pdf_render_is_bounded_in_time() -> None:
     from sitrep.deliver.pdf import PdfWorker, html_to_pdf
 
-    rows = "".join(f"<tr><td>District {k} " + "long name " * 20 + f"</td><td>{k}</td></tr>"
-                   for k in range(40_000))
+    rows = "".join(
+        f"<tr><td>District {k} " + "long name " * 20 + f"</td><td>{k}</td></tr>"
+        for k in range(40_000)
+    )
     started = time.perf_counter()
     with pytest.raises(DeliveryError, match="not finished within 2 s"):
         html_to_pdf(f"<html><body><table>{rows}</table></body></html>", timeout_s=2)
@@ -286,22 +328,32 @@ def test_h20_pdf_render_is_bounded_in_time() -> None:
 # --------------------------------------------------------------------------- F23
 
 
-@pytest.mark.parametrize(("content", "rule"), [(b"", "file-empty"),
-                                               (b"district_id,district_name,epi_week,reporting_sites,"
-                                                b"ili_visits,total_visits\n", "file-header-only")])
+@pytest.mark.parametrize(
+    ("content", "rule"),
+    [
+        (b"", "file-empty"),
+        (
+            b"district_id,district_name,epi_week,reporting_sites,ili_visits,total_visits\n",
+            "file-header-only",
+        ),
+    ],
+)
 def test_h23_empty_or_header_only_table_blocks_everything(
     tmp_path: Path, content: bytes, rule: str
 ) -> None:
     recorder = RecordingHandler()
     with smtp_server(recorder) as port:
-        week = make_week(tmp_path / "week", pdf=False,
-                         config={"email": {"enabled": True, "port": port}})
+        week = make_week(
+            tmp_path / "week", pdf=False, config={"email": {"enabled": True, "port": port}}
+        )
         week.table.write_bytes(content)
         code, out, err = run_cli(["check", "--config", str(week.config_path), "--json"])
         assert code == 1 and [f["rule"] for f in json.loads(out)["findings"]] == [rule]
         code, out, err = run_cli(["build", "--config", str(week.config_path)])
         assert code == 1 and rule in err
-        code, out, err = run_cli(["run", "--config", str(week.config_path), "--today", "2026-11-30"])
+        code, out, err = run_cli(
+            ["run", "--config", str(week.config_path), "--today", "2026-11-30"]
+        )
         assert code == 1 and week.table.name in out + err
         assert recorder.sessions == 0 and recorder.messages == []
     assert tree_hashes(week.out) == {} and tree_hashes(week.archive) == {}

@@ -155,8 +155,12 @@ def test_h02_ids_stay_text_in_csv_xlsx_and_parquet(week: Any, tmp_path: Path) ->
 
 
 def test_h02_a_district_without_a_row_is_kept_and_labelled_not_reported(tmp_path: Path) -> None:
-    week = make_week(tmp_path / "week", ids=IDS, pdf=False, edit_table=lambda rows: [
-        r for r in rows if not (r[0] == "002" and r[2] == WEEKS[-1])])
+    week = make_week(
+        tmp_path / "week",
+        ids=IDS,
+        pdf=False,
+        edit_table=lambda rows: [r for r in rows if not (r[0] == "002" and r[2] == WEEKS[-1])],
+    )
     result = build(week)
     table = result.analysis.table
     assert len(table) == len(IDS) and set(table["district_id"]) == set(IDS)
@@ -164,8 +168,13 @@ def test_h02_a_district_without_a_row_is_kept_and_labelled_not_reported(tmp_path
     assert (row.ili_pct, row.total_visits, row.notes) == ("no data", "—", "not reported this week")
     alts = {f.key: f.alt for f in result.context.figures}
     assert "no data / suppressed 1" in alts["terciles"] and "1 district no data" in alts["clusters"]
-    csv_row = next(r for r in csv.DictReader(io.StringIO(read_outputs(result)["results.csv"].decode("utf-8-sig")))
-                   if r["district_id"] == "002")
+    csv_row = next(
+        r
+        for r in csv.DictReader(
+            io.StringIO(read_outputs(result)["results.csv"].decode("utf-8-sig"))
+        )
+        if r["district_id"] == "002"
+    )
     assert csv_row["total_visits"] == "" and csv_row["ili_percent"] == ""
 
 
@@ -178,7 +187,9 @@ def _geojson(frame: Any, path: Path, *, swap: bool = False) -> Path:
     if swap:
         for feature in doc["features"]:
             geometry = feature["geometry"]
-            geometry["coordinates"] = [[[y, x] for x, y in ring] for ring in geometry["coordinates"]]
+            geometry["coordinates"] = [
+                [[y, x] for x, y in ring] for ring in geometry["coordinates"]
+            ]
     path.write_text(json.dumps(doc), encoding="utf-8")
     return path
 
@@ -191,7 +202,10 @@ def test_h13_crs_errors_are_refused_and_a_reprojection_changes_nothing(
     utm = gpd.read_file(week.boundaries)
     lonlat = utm.to_crs("EPSG:4326")
     cases = {
-        "metres.geojson": (_geojson(utm, tmp_path / "metres.geojson"), "crs-coordinates-out-of-range"),
+        "metres.geojson": (
+            _geojson(utm, tmp_path / "metres.geojson"),
+            "crs-coordinates-out-of-range",
+        ),
     }
     shp = tmp_path / "noprj.shp"  # dBASE field names are at most 10 characters
     utm.rename(columns={"district_id": "did", "district_name": "name"}).to_file(shp)
@@ -199,15 +213,26 @@ def test_h13_crs_errors_are_refused_and_a_reprojection_changes_nothing(
     cases["noprj.shp"] = (shp, "crs-missing")
     # the extent this jurisdiction declares: a little around the real one (RFC 7946 bbox order)
     west, south, east, north = lonlat.total_bounds
-    extent = [round(west - 0.5, 3), round(south - 0.5, 3), round(east + 0.5, 3), round(north + 0.5, 3)]
-    cases["swapped.geojson"] = (_geojson(lonlat, tmp_path / "swapped.geojson", swap=True),
-                                "boundaries-outside-extent")
+    extent = [
+        round(west - 0.5, 3),
+        round(south - 0.5, 3),
+        round(east + 0.5, 3),
+        round(north + 0.5, 3),
+    ]
+    cases["swapped.geojson"] = (
+        _geojson(lonlat, tmp_path / "swapped.geojson", swap=True),
+        "boundaries-outside-extent",
+    )
     try:
         for name, (path, rule) in cases.items():
             short = name.endswith(".shp")
-            layer = {"boundaries": str(path), "boundaries_layer": "", "boundaries_extent": extent,
-                     "boundaries_id_column": "did" if short else "district_id",
-                     "boundaries_name_column": "name" if short else "district_name"}
+            layer = {
+                "boundaries": str(path),
+                "boundaries_layer": "",
+                "boundaries_extent": extent,
+                "boundaries_id_column": "did" if short else "district_id",
+                "boundaries_name_column": "name" if short else "district_name",
+            }
             week.raw["input"].pop("boundaries_layer", None)
             week.write_config(input={k: v for k, v in layer.items() if v != ""})
             code, doc, err = check(week)
@@ -219,9 +244,14 @@ def test_h13_crs_errors_are_refused_and_a_reprojection_changes_nothing(
         assert code == 0, doc
     finally:
         week.raw["input"].pop("boundaries_extent", None)
-        week.write_config(input={"boundaries": str(week.boundaries), "boundaries_layer": "districts",
-                                 "boundaries_id_column": "district_id",
-                                 "boundaries_name_column": "district_name"})
+        week.write_config(
+            input={
+                "boundaries": str(week.boundaries),
+                "boundaries_layer": "districts",
+                "boundaries_id_column": "district_id",
+                "boundaries_name_column": "district_name",
+            }
+        )
     # the declared extent itself is checked when the configuration is loaded
     from sitrep.config import config_from_dict
     from sitrep.errors import ConfigError
@@ -235,13 +265,20 @@ def test_h13_crs_errors_are_refused_and_a_reprojection_changes_nothing(
 
     xs, ys = [0, 7_000, 19_000, 26_000, 40_000], [0, 9_000, 21_000, 30_000]
     x0, y0 = 500_000, 5_500_000
-    cells = [box(x0 + xs[c], y0 + ys[r], x0 + xs[c + 1], y0 + ys[r + 1])
-             for r in range(3) for c in range(4)]
+    cells = [
+        box(x0 + xs[c], y0 + ys[r], x0 + xs[c + 1], y0 + ys[r + 1])
+        for r in range(3)
+        for c in range(4)
+    ]
     cells.append(box(x0 + 55_000, y0 + 3_000, x0 + 59_000, y0 + 8_000))
     tiling = gpd.GeoDataFrame({"district_id": IDS}, geometry=cells, crs="EPSG:32630")
     geographic = tiling.to_crs("EPSG:4326")
-    for kind, options in (("queen", {}), ("rook", {}), ("knn", {"k": 3}),
-                          ("queen", {"link_islands_k": 2})):
+    for kind, options in (
+        ("queen", {}),
+        ("rook", {}),
+        ("knn", {"k": 3}),
+        ("queen", {"link_islands_k": 2}),
+    ):
         a = build_graph(tiling, kind=kind, **options)
         b = build_graph(geographic, kind=kind, **options)
         assert a.neighbours == b.neighbours, (kind, options)
@@ -252,9 +289,7 @@ def test_h13_crs_errors_are_refused_and_a_reprojection_changes_nothing(
 # --------------------------------------------------------------------------- F14
 
 
-def test_h14_bad_geometry_is_named_before_any_neighbour_is_built(
-    week: Any, tmp_path: Path
-) -> None:
+def test_h14_bad_geometry_is_named_before_any_neighbour_is_built(week: Any, tmp_path: Path) -> None:
     import geopandas as gpd
     from shapely.geometry import LineString, Polygon
 
@@ -275,8 +310,11 @@ def test_h14_bad_geometry_is_named_before_any_neighbour_is_built(
         week.write_config(input={"boundaries": str(week.boundaries)})
     errors = {(f["rule"], f["district_id"]) for f in doc["findings"] if f["severity"] == "error"}
     assert code == 1 and errors == {
-        ("geometry-invalid", "002"), ("geometry-missing", "003"), ("geometry-not-polygon", "004"),
-        ("geometry-missing", "006"), ("id-duplicated", "001"),
+        ("geometry-invalid", "002"),
+        ("geometry-missing", "003"),
+        ("geometry-not-polygon", "004"),
+        ("geometry-missing", "006"),
+        ("id-duplicated", "001"),
     }
 
 
@@ -298,10 +336,13 @@ def test_h14_shrunk_polygons_warn_and_holes_and_enclaves_keep_their_neighbours(
     gaps = {f["district_id"] for f in findings(doc, "geometry-gap")}
     assert code == 0 and gaps == set(IDS[:-1])  # every grid district; the far island is sea
     # a hole stays a hole; an enclave filling it has its host as neighbour
-    host = Polygon([(0, 0), (300, 0), (300, 300), (0, 300)], [[(100, 100), (200, 100), (200, 200), (100, 200)]])
+    host = Polygon(
+        [(0, 0), (300, 0), (300, 300), (0, 300)], [[(100, 100), (200, 100), (200, 200), (100, 200)]]
+    )
     frame = gpd.GeoDataFrame(
         {"district_id": ["host", "enclave", "east"]},
-        geometry=[host, box(100, 100, 200, 200), box(300, 0, 600, 300)], crs="EPSG:32630",
+        geometry=[host, box(100, 100, 200, 200), box(300, 0, 600, 300)],
+        crs="EPSG:32630",
     )
     graph = build_graph(frame)
     assert graph.neighbours["enclave"] == ("host",)
@@ -353,7 +394,9 @@ def test_h15_bom_crlf_latin1_and_decimal_comma_follow_declared_rules(
     latin.write_bytes(text.encode("latin-1"))
     code, doc, _ = check(week, latin)
     bad = findings(doc, "file-encoding")
-    assert code == 1 and [(f["line"], f["column"], f["value"]) for f in bad] == [(6, "district_name", "0xe4")]
+    assert code == 1 and [(f["line"], f["column"], f["value"]) for f in bad] == [
+        (6, "district_name", "0xe4")
+    ]
     assert frame(latin, encoding="latin-1").equals(reference)  # declared encoding: same table
     # ';' with decimal commas in a supplied rate column
     header = [*HEADER, "ili_pct"]
@@ -365,8 +408,10 @@ def test_h15_bom_crlf_latin1_and_decimal_comma_follow_declared_rules(
         code, doc, _ = check(week, semi)
         refused = findings(doc, "cell-not-number")
         assert code == 1 and len(refused) == len(rows)
-        assert all(f["column"] == "ili_pct" and f["line"] and "input.decimal" in f["message"]
-                   for f in refused)
+        assert all(
+            f["column"] == "ili_pct" and f["line"] and "input.decimal" in f["message"]
+            for f in refused
+        )
         week.write_config(input={"decimal": ","})
         table, report = read_count_table(semi, week.config().input, WeekSystem.MMWR)
     finally:
@@ -389,8 +434,13 @@ def test_h16_duplicate_rows_and_duplicate_headers_are_errors(week: Any, tmp_path
     code, doc, _ = check(week, write_csv(tmp_path / "dup.csv", rows))
     dup = findings(doc, "row-duplicate")
     assert code == 1 and len(dup) == 1
-    assert dup[0]["line"] == len(rows) + 1 and f"lines {len(rows)}, {len(rows) + 1}" in dup[0]["message"]
-    twice = write_csv(tmp_path / "twice.csv", [r + [r[4]] for r in body(week)], [*HEADER, "ili_visits"])
+    assert (
+        dup[0]["line"] == len(rows) + 1
+        and f"lines {len(rows)}, {len(rows) + 1}" in dup[0]["message"]
+    )
+    twice = write_csv(
+        tmp_path / "twice.csv", [r + [r[4]] for r in body(week)], [*HEADER, "ili_visits"]
+    )
     code, doc, _ = check(week, twice)
     assert code == 1 and [(f["line"], f["column"]) for f in findings(doc, "column-duplicated")] == [
         (1, "ili_visits")
@@ -400,9 +450,13 @@ def test_h16_duplicate_rows_and_duplicate_headers_are_errors(week: Any, tmp_path
 def test_h17_every_impossible_value_is_listed_in_one_report(week: Any, tmp_path: Path) -> None:
     # stage 1 (typing): every cell that is not a plain number, in one report
     rows = body(week)
-    bad_text = {("001", "ili_visits"): "n/a", ("002", "ili_visits"): "<5",
-                ("003", "total_visits"): "1,234", ("004", "ili_visits"): "5%",
-                ("005", "reporting_sites"): "three"}
+    bad_text = {
+        ("001", "ili_visits"): "n/a",
+        ("002", "ili_visits"): "<5",
+        ("003", "total_visits"): "1,234",
+        ("004", "ili_visits"): "5%",
+        ("005", "reporting_sites"): "three",
+    }
     col = {name: k for k, name in enumerate(HEADER)}
     for (ident, column), value in bad_text.items():
         rows[line_of(rows, ident, WEEKS[-1]) - 2][col[column]] = value
@@ -413,12 +467,18 @@ def test_h17_every_impossible_value_is_listed_in_one_report(week: Any, tmp_path:
     }
     # stage 2 (values): ILI above total, negatives, zero denominator, in one report
     rows = body(week)
-    cells = {("006", "ili_visits"): "9999", ("007", "ili_visits"): "-3",
-             ("008", "total_visits"): "0", ("009", "reporting_sites"): "-1"}
+    cells = {
+        ("006", "ili_visits"): "9999",
+        ("007", "ili_visits"): "-3",
+        ("008", "total_visits"): "0",
+        ("009", "reporting_sites"): "-1",
+    }
     for (ident, column), value in cells.items():
         rows[line_of(rows, ident, WEEKS[-1]) - 2][col[column]] = value
     code, doc, _ = check(week, write_csv(tmp_path / "values.csv", rows))
-    listed = {(f["rule"], f["line"], f["column"]) for f in doc["findings"] if f["severity"] == "error"}
+    listed = {
+        (f["rule"], f["line"], f["column"]) for f in doc["findings"] if f["severity"] == "error"
+    }
     line = {i: line_of(rows, i, WEEKS[-1]) for i, _ in cells}
     assert code == 1 and listed == {
         ("count-ili-exceeds-total", line["006"], "ili_visits"),
@@ -452,13 +512,53 @@ def test_h22_nfd_table_matches_nfc_boundaries(tmp_path: Path) -> None:
 
 # --------------------------------------------------------------------------- property test
 
-CELL_VALUES = ["", " ", "0", "12", "-1", "1.5", "12.0", "n/a", "<5", "1,234", "5%", "1e3", "９",
-               "\u00a0", '"', "'", "=1+1", "2026-W99", "2026-W7", "2026W47", "NaN", "inf",
-               "99999999999999999999999", "001", "Ωmega", "a;b", "x\ny"]
-CELL_RULES = {"id-missing", "id-numeric", "cell-missing", "cell-not-number", "count-not-integer",
-              "week-invalid", "week-date-weekday", "count-negative", "count-ili-exceeds-total",
-              "count-zero-total", "row-duplicate", "id-not-in-boundaries", "week-future",
-              "week-mixed", "column-duplicated", "column-missing"}
+CELL_VALUES = [
+    "",
+    " ",
+    "0",
+    "12",
+    "-1",
+    "1.5",
+    "12.0",
+    "n/a",
+    "<5",
+    "1,234",
+    "5%",
+    "1e3",
+    "９",
+    "\u00a0",
+    '"',
+    "'",
+    "=1+1",
+    "2026-W99",
+    "2026-W7",
+    "2026W47",
+    "NaN",
+    "inf",
+    "99999999999999999999999",
+    "001",
+    "Ωmega",
+    "a;b",
+    "x\ny",
+]
+CELL_RULES = {
+    "id-missing",
+    "id-numeric",
+    "cell-missing",
+    "cell-not-number",
+    "count-not-integer",
+    "week-invalid",
+    "week-date-weekday",
+    "count-negative",
+    "count-ili-exceeds-total",
+    "count-zero-total",
+    "row-duplicate",
+    "id-not-in-boundaries",
+    "week-future",
+    "week-mixed",
+    "column-duplicated",
+    "column-missing",
+}
 
 
 @st.composite
@@ -467,8 +567,12 @@ def weekly_tables(draw: st.DrawFn) -> bytes:
     rows = [list(r) for r in table_rows(IDS, [f"N{k}" for k in range(13)], WEEKS[-3:], 4)]
     header = list(HEADER)
     for _ in range(draw(st.integers(0, 3))):
-        kind = draw(st.sampled_from(["cell"] * 6 + ["drop-cell", "dup-row", "drop-row",
-                                                    "header", "blank-line", "extra-cell"]))
+        kind = draw(
+            st.sampled_from(
+                ["cell"] * 6
+                + ["drop-cell", "dup-row", "drop-row", "header", "blank-line", "extra-cell"]
+            )
+        )
         i = draw(st.integers(0, len(rows) - 1))
         j = draw(st.integers(0, len(header) - 1))
         if kind == "cell":
@@ -490,8 +594,9 @@ def weekly_tables(draw: st.DrawFn) -> bytes:
     writer = csv.writer(buffer, lineterminator=draw(st.sampled_from(["\n", "\r\n"])))
     writer.writerow(header)
     writer.writerows(rows)
-    data = buffer.getvalue().encode(draw(st.sampled_from(["utf-8", "utf-8", "latin-1"])),
-                                    errors="replace")
+    data = buffer.getvalue().encode(
+        draw(st.sampled_from(["utf-8", "utf-8", "latin-1"])), errors="replace"
+    )
     tail = draw(st.sampled_from(["none"] * 5 + ["bom", "truncate", "bytes"]))
     if tail == "bom":
         data = b"\xef\xbb\xbf" + data
@@ -523,8 +628,13 @@ def scratch(tmp_path_factory: pytest.TempPathFactory) -> Path:
     return tmp_path_factory.mktemp("property")
 
 
-@settings(max_examples=60, derandomize=True, deadline=None, database=None,
-          suppress_health_check=[HealthCheck.function_scoped_fixture, HealthCheck.too_slow])
+@settings(
+    max_examples=60,
+    derandomize=True,
+    deadline=None,
+    database=None,
+    suppress_health_check=[HealthCheck.function_scoped_fixture, HealthCheck.too_slow],
+)
 @given(data=weekly_tables())
 @example(data=CLEAN)
 @example(data=_table_bytes(_bad_cells))
@@ -534,8 +644,18 @@ def test_property_sitrep_check_never_crashes_and_locates_every_cell_error(
 ) -> None:
     path = scratch / "table.csv"
     path.write_bytes(data)
-    code, out, err = run_cli(["check", "--config", str(week.config_path), "--table", str(path),
-                              "--json", "--today", "2026-11-30"])
+    code, out, err = run_cli(
+        [
+            "check",
+            "--config",
+            str(week.config_path),
+            "--table",
+            str(path),
+            "--json",
+            "--today",
+            "2026-11-30",
+        ]
+    )
     assert code in (0, 1, 2), (code, err)
     assert "Traceback" not in out + err and "internal error" not in err, err
     doc = json.loads(out)

@@ -151,7 +151,9 @@ def test_h03_url_fetcher_allows_only_data_and_own_assets(tmp_path: Path) -> None
 
 
 def test_h09_formula_cells_are_neutralised_in_every_csv(hostile: types.SimpleNamespace) -> None:
-    rows = list(csv.DictReader(io.StringIO(hostile.out["results.csv"].decode("utf-8-sig"), newline="")))
+    rows = list(
+        csv.DictReader(io.StringIO(hostile.out["results.csv"].decode("utf-8-sig"), newline=""))
+    )
     assert len(rows) == len(hostile.names)  # RFC 4180 quoting kept every row whole
     shown = dict(zip(hostile.week.ids, hostile.names, strict=True))
     for row in rows:
@@ -171,7 +173,18 @@ def test_h09_formula_cells_are_neutralised_in_every_csv(hostile: types.SimpleNam
     kinds = {Path(n).suffix for n in hostile.out} | {
         p.suffix for p in hostile.result.bundle.path.rglob("*") if p.is_file()
     }
-    assert kinds <= {".html", ".pdf", ".md", ".docx", ".txt", ".csv", ".json", ".png", ".svg", ".gpkg"}
+    assert kinds <= {
+        ".html",
+        ".pdf",
+        ".md",
+        ".docx",
+        ".txt",
+        ".csv",
+        ".json",
+        ".png",
+        ".svg",
+        ".gpkg",
+    }
 
 
 def _is_number(cell: str) -> bool:
@@ -238,8 +251,13 @@ def test_h10_names_cannot_become_markup_in_html_pdf_docx_or_mail(
 
     # e-mail (.eml of `sitrep send --dry-run`): plain text only, names literal, one PDF
     code, out, err = run_cli(
-        ["send", str(hostile.result.bundle.path), "--config", str(hostile.week.config_path),
-         "--dry-run"]
+        [
+            "send",
+            str(hostile.result.bundle.path),
+            "--config",
+            str(hostile.week.config_path),
+            "--dry-run",
+        ]
     )
     assert code == 0, (out, err)
     eml = hostile.result.bundle.path.with_name(hostile.result.bundle.path.name + ".eml")
@@ -326,8 +344,21 @@ def glyphs(tmp_path_factory: pytest.TempPathFactory) -> types.SimpleNamespace:
     """A week whose highest-ILI districts carry names in several scripts (built with the
     inherited SOURCE_DATE_EPOCH unset, for the reproducibility check)."""
     folder = tmp_path_factory.mktemp("glyphs")
-    names = ["Arden", "Brannoch", "Coldwater", "Dunmere", "Eastfold", "Fennick", "Garrow",
-             "Holloway", "Ivel", "Juniper", "Kestrel", "Larkmoor", "Merrow"]
+    names = [
+        "Arden",
+        "Brannoch",
+        "Coldwater",
+        "Dunmere",
+        "Eastfold",
+        "Fennick",
+        "Garrow",
+        "Holloway",
+        "Ivel",
+        "Juniper",
+        "Kestrel",
+        "Larkmoor",
+        "Merrow",
+    ]
     for k, name in zip((0, 4, 8, 12, 1, 5), GLYPH_NAMES, strict=True):
         names[k] = name  # west columns and the island: the highest third this week
     week = make_week(folder / "week", names=names)
@@ -338,7 +369,9 @@ def glyphs(tmp_path_factory: pytest.TempPathFactory) -> types.SimpleNamespace:
         if saved is not None:
             os.environ["SOURCE_DATE_EPOCH"] = saved
     out = read_outputs(result)
-    return types.SimpleNamespace(week=week, result=result, out=out, pdf_text=pdf_text(out["report.pdf"]))
+    return types.SimpleNamespace(
+        week=week, result=result, out=out, pdf_text=pdf_text(out["report.pdf"])
+    )
 
 
 def test_h21_greek_cyrillic_and_diacritics_round_trip_with_a_covering_font(
@@ -361,8 +394,21 @@ def test_h21_cjk_name_is_drawn_or_named_in_a_warning(tmp_path: Path) -> None:
     """DejaVu Sans (shipped) has no CJK glyphs; without a CJK system font they print as
     .notdef boxes, so the report must warn and name each character."""
     cjk = "北区 東京"
-    names = ["Arden", "Brannoch", "Coldwater", "Dunmere", "Eastfold", "Fennick", "Garrow",
-             "Holloway", "Ivel", "Juniper", "Kestrel", "Larkmoor", cjk]
+    names = [
+        "Arden",
+        "Brannoch",
+        "Coldwater",
+        "Dunmere",
+        "Eastfold",
+        "Fennick",
+        "Garrow",
+        "Holloway",
+        "Ivel",
+        "Juniper",
+        "Kestrel",
+        "Larkmoor",
+        cjk,
+    ]
     week = make_week(tmp_path / "week", names=names)
     result = build(week)  # filterwarnings=error: matplotlib draws no name, so no glyph warning
     out = read_outputs(result)
@@ -402,8 +448,14 @@ def test_h19_outputs_are_byte_identical_across_processes(glyphs: types.SimpleNam
     )
     env = {**os.environ, "PYTHONHASHSEED": "4242"}
     env.pop("SOURCE_DATE_EPOCH", None)
-    run = subprocess.run([sys.executable, "-c", script, str(second)], cwd=ROOT, env=env,
-                         timeout=120, capture_output=True, text=True)
+    run = subprocess.run(
+        [sys.executable, "-c", script, str(second)],
+        cwd=ROOT,
+        env=env,
+        timeout=120,
+        capture_output=True,
+        text=True,
+    )
     assert run.returncode == 0, run.stderr[-2000:]
     first = tree_hashes(week.archive)
     assert first and first == tree_hashes(week.folder / "archive-b")
@@ -429,7 +481,11 @@ def test_h19_empty_source_date_epoch_is_replaced_or_rejected_by_the_cli(
     env = {**os.environ, "SOURCE_DATE_EPOCH": ""}
     run = subprocess.run(
         [sys.executable, "-m", "sitrep.cli", "build", "--config", str(third)],
-        cwd=ROOT, env=env, timeout=120, capture_output=True, text=True,
+        cwd=ROOT,
+        env=env,
+        timeout=120,
+        capture_output=True,
+        text=True,
     )
     if run.returncode == 2:
         assert "SOURCE_DATE_EPOCH" in run.stderr and "internal error" not in run.stderr

@@ -109,9 +109,16 @@ def test_h01_island_and_orphaned_district_are_never_clusters(plain: types.Simple
 
     # end to end: the island of the invented week is labelled, with no p-value, in every output
     week, out = plain.week, plain.out
-    rows = {r["district_id"]: r for r in csv.DictReader(io.StringIO(out["results.csv"].decode("utf-8-sig")))}
+    rows = {
+        r["district_id"]: r
+        for r in csv.DictReader(io.StringIO(out["results.csv"].decode("utf-8-sig")))
+    }
     island = rows[week.ids[-1]]
-    assert (island["cluster_label"], island["p_value"], island["q_value"]) == ("no neighbours", "", "")
+    assert (island["cluster_label"], island["p_value"], island["q_value"]) == (
+        "no neighbours",
+        "",
+        "",
+    )
     districts = json.loads(out["results.json"])["districts"]
     assert next(d for d in districts if d["district_id"] == week.ids[-1])["p_value"] is None
 
@@ -155,7 +162,8 @@ def test_h04_zero_variance_week_with_an_island_does_not_say_no_clusters(tmp_path
 
 def test_h04_district_without_data_is_dropped_with_a_warning(tmp_path: Path) -> None:
     week = make_week(
-        tmp_path / "week", pdf=False,
+        tmp_path / "week",
+        pdf=False,
         edit_table=lambda rows: [r for r in rows if not (r[2] == WEEKS[-1] and r[0] == "D06")],
     )
     result = build(week)
@@ -163,8 +171,10 @@ def test_h04_district_without_data_is_dropped_with_a_warning(tmp_path: Path) -> 
     k = clusters.ids.index("D06")
     assert clusters.labels[k] is ClusterLabel.NO_DATA and clusters.assessable
     assert np.isfinite(clusters.local_i[clusters.tested]).all() and clusters.n_tested == 11
-    assert any(f.rule == "district-missing-latest" and f.district_id == "D06"
-               for f in result.validation.warnings)
+    assert any(
+        f.rule == "district-missing-latest" and f.district_id == "D06"
+        for f in result.validation.warnings
+    )
     assert "could not be assessed" not in result.context.key_messages[3]
 
 
@@ -200,7 +210,9 @@ def quality(tmp_path_factory: pytest.TempPathFactory) -> types.SimpleNamespace:
         folder / "week",
         header=(*HEADER, "ili_pct"),
         edit_table=_h5_table,
-        edit_prior=lambda rows: [r + [f"{100 * int(r[4]) / int(r[5]):.4f}"] for r in _h5_prior(rows)],
+        edit_prior=lambda rows: [
+            r + [f"{100 * int(r[4]) / int(r[5]):.4f}"] for r in _h5_prior(rows)
+        ],
         config={"input": {"columns": {"rate": "ili_pct"}}},
     )
     result = build(week)
@@ -226,15 +238,21 @@ def test_h05_data_quality_breaks_are_flagged_and_never_told_as_a_fall_in_cases(
     assert squash("total visits fell from") in squash(quality.pdf)
     assert "a fall in reporting completeness" in draft
     for message in result.context.key_messages:
-        assert not re.search(r"\b(cases|visits|patients|illness)\s+(fell|dropped|declined)", message)
+        assert not re.search(
+            r"\b(cases|visits|patients|illness)\s+(fell|dropped|declined)", message
+        )
         if re.search(r"\b(fell|fall|decrease)", message) and "completeness" not in message:
             assert "missing reports rather than less illness" in message, message
     # prior rate 0: 'from 0 to X', and no inf/nan anywhere a reader looks
     row = next(r for r in result.context.districts if r.district_id == "D03")
     assert row.change.startswith("from 0 to ") and row.change.endswith("%")
     visible = " ".join(scan_html(html_text).text)
-    for name, text in (("html", visible), ("pdf", quality.pdf), ("draft", draft),
-                       ("email", out["email.txt"].decode())):
+    for name, text in (
+        ("html", visible),
+        ("pdf", quality.pdf),
+        ("draft", draft),
+        ("email", out["email.txt"].decode()),
+    ):
         assert not FORBIDDEN.search(text), (name, FORBIDDEN.search(text))
     assert not re.search(r"\b(inf|nan)\b", out["results.csv"].decode(), flags=re.I)
     json.loads(out["results.json"], parse_constant=lambda c: pytest.fail(f"JSON holds {c}"))
@@ -256,11 +274,16 @@ def test_h17_zero_denominator_district_is_shown_without_a_rate(
     row = next(r for r in quality.result.context.districts if r.district_id == "D07")
     assert row.total_visits == "0" and not re.search(r"\d", row.ili_pct)
     assert row.ci == "—" and row.change == "—"
-    csv_row = next(r for r in csv.DictReader(io.StringIO(quality.out["results.csv"].decode("utf-8-sig")))
-                   if r["district_id"] == "D07")
+    csv_row = next(
+        r
+        for r in csv.DictReader(io.StringIO(quality.out["results.csv"].decode("utf-8-sig")))
+        if r["district_id"] == "D07"
+    )
     assert csv_row["ili_percent"] == "" and csv_row["change_relative"] == ""
-    assert quality.result.analysis.clusters.labels[
-        quality.result.analysis.clusters.ids.index("D07")] is ClusterLabel.NO_DATA
+    assert (
+        quality.result.analysis.clusters.labels[quality.result.analysis.clusters.ids.index("D07")]
+        is ClusterLabel.NO_DATA
+    )
 
 
 # --------------------------------------------------------------------------- F6
@@ -282,8 +305,9 @@ def test_h06_weeks_out_of_order_block_and_leave_the_archive_untouched(
     assert (tree_hashes(week.archive), tree_hashes(week.out)) == before
 
     # the prior table skipped a week: the change is against W46 as given this week, and says so
-    skipped = make_week(tmp_path / "skip", pdf=False,
-                        edit_prior=lambda rows: [r for r in rows if r[2] != WEEKS[-2]])
+    skipped = make_week(
+        tmp_path / "skip", pdf=False, edit_prior=lambda rows: [r for r in rows if r[2] != WEEKS[-2]]
+    )
     result = build(skipped)
     warning = next(f for f in result.validation.warnings if f.rule == "week-skipped")
     assert "over 2 weeks" in warning.message and "against 2026-W46 as given" in warning.message
@@ -291,12 +315,16 @@ def test_h06_weeks_out_of_order_block_and_leave_the_archive_untouched(
     assert "in week 46" in result.context.key_messages[0]
 
     # neither table holds W46: the change is withheld, never taken against W45
-    gap = make_week(tmp_path / "gap", pdf=False,
-                    edit_prior=lambda rows: [r for r in rows if r[2] != WEEKS[-2]],
-                    edit_table=lambda rows: [r for r in rows if r[2] != WEEKS[-2]])
+    gap = make_week(
+        tmp_path / "gap",
+        pdf=False,
+        edit_prior=lambda rows: [r for r in rows if r[2] != WEEKS[-2]],
+        edit_table=lambda rows: [r for r in rows if r[2] != WEEKS[-2]],
+    )
     result = build(gap)
     assert "change is not assessed" in next(
-        f.message for f in result.validation.warnings if f.rule == "week-skipped")
+        f.message for f in result.validation.warnings if f.rule == "week-skipped"
+    )
     assert result.analysis.jurisdiction.change_class.value == "not assessable"
     assert "cannot be assessed" in result.context.key_messages[0]
     assert "week 45" not in result.context.key_messages[0]
@@ -309,8 +337,16 @@ def test_h06_iso_53_week_year_and_year_boundary_use_the_right_prior_week(tmp_pat
     assert dt.date(2025, 12, 28).isocalendar()[:2] == (2025, 52)
     assert dt.date(2025, 12, 29).isocalendar()[:2] == (2026, 1)
     for weeks, today, prior in (
-        (["2026-W50", "2026-W51", "2026-W52", "2026-W53", "2027-W01"], dt.date(2027, 1, 11), "2026-W53"),
-        (["2025-W49", "2025-W50", "2025-W51", "2025-W52", "2026-W01"], dt.date(2026, 1, 5), "2025-W52"),
+        (
+            ["2026-W50", "2026-W51", "2026-W52", "2026-W53", "2027-W01"],
+            dt.date(2027, 1, 11),
+            "2026-W53",
+        ),
+        (
+            ["2025-W49", "2025-W50", "2025-W51", "2025-W52", "2026-W01"],
+            dt.date(2026, 1, 5),
+            "2025-W52",
+        ),
     ):
         week = make_week(tmp_path / weeks[-1], pdf=False, weeks=weeks, system="iso")
         result = build(week, today=today)
@@ -341,8 +377,10 @@ def test_h06_mixed_weeks_in_a_file_declared_weekly_are_errors(tmp_path: Path) ->
 
 def test_h07_revised_last_week_is_reported_and_archive_keeps_history(tmp_path: Path) -> None:
     def inflate(rows: list[list[str]]) -> list[list[str]]:
-        return [r[:4] + [str(int(r[4]) * 4), r[5]] if r[0] == "D05" and r[2] == WEEKS[-2] else r
-                for r in rows]
+        return [
+            r[:4] + [str(int(r[4]) * 4), r[5]] if r[0] == "D05" and r[2] == WEEKS[-2] else r
+            for r in rows
+        ]
 
     week = make_week(tmp_path / "week", pdf=False, edit_table=inflate)
     config = week.config()
@@ -351,17 +389,26 @@ def test_h07_revised_last_week_is_reported_and_archive_keeps_history(tmp_path: P
     )
     first = pipeline.build(last_week, today=dt.date(2026, 11, 23))  # the W46 report, archived
     archived = tree_hashes(first.bundle.path)
-    old = next(r for r in csv.reader(io.StringIO(week.prior.read_text()))
-               if r[0] == "D05" and r[2] == WEEKS[-2])
-    new = next(r for r in csv.reader(io.StringIO(week.table.read_text()))
-               if r[0] == "D05" and r[2] == WEEKS[-2])
+    old = next(
+        r
+        for r in csv.reader(io.StringIO(week.prior.read_text()))
+        if r[0] == "D05" and r[2] == WEEKS[-2]
+    )
+    new = next(
+        r
+        for r in csv.reader(io.StringIO(week.table.read_text()))
+        if r[0] == "D05" and r[2] == WEEKS[-2]
+    )
     result = build(week)
     big = [f for f in result.validation.warnings if f.rule == "revision-large"]
     assert [f.district_id for f in big] == ["D05"]
     assert f"ILI visits {old[4]} -> {new[4]}" in big[0].message
     assert tree_hashes(first.bundle.path) == archived  # the W46 bundle is byte-identical
-    d05 = next(d for d in json.loads(read_outputs(result)["results.json"])["districts"]
-               if d["district_id"] == "D05")
+    d05 = next(
+        d
+        for d in json.loads(read_outputs(result)["results.json"])["districts"]
+        if d["district_id"] == "D05"
+    )
     assert d05["prior_ili_percent"] == pytest.approx(100 * int(new[4]) / int(new[5]))
     assert d05["prior_ili_percent_published"] == pytest.approx(100 * int(old[4]) / int(old[5]))
     assert "revised from" in result.context.key_messages[0]  # which W46 value the change uses
@@ -383,7 +430,9 @@ def test_h25_pinned_versions_and_golden_local_moran_values() -> None:
     assert version("weasyprint").split(".")[0] == "70"
     import weasyprint.urls
 
-    assert hasattr(weasyprint.urls, "URLFetcher") and not hasattr(weasyprint.urls, "default_url_fetcher")
+    assert hasattr(weasyprint.urls, "URLFetcher") and not hasattr(
+        weasyprint.urls, "default_url_fetcher"
+    )
 
     # libpysal's bundled desmith data (de Smith, Goodchild & Longley, Geospatial Analysis)
     gal = libpysal.io.open(libpysal.examples.get_path("desmith.gal"))

@@ -64,7 +64,14 @@ TOP_LEVEL: dict[str, set[str]] = {
     "delivery_jobs": {*ORDER, *SHARED, "pipeline"},
     "starter": {"ingest", *SHARED},
     "cli": {
-        *ORDER, *SHARED, "pipeline", "batch", "delivery_jobs", "cache", "versions", "starter",
+        *ORDER,
+        *SHARED,
+        "pipeline",
+        "batch",
+        "delivery_jobs",
+        "cache",
+        "versions",
+        "starter",
         "progress",
     },
 }

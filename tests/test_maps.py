@@ -352,7 +352,9 @@ def test_cluster_map_accepts_enum_members_and_lists_the_labels_present(geoms):
     texts = legend_texts(fig)
     assert len(texts) == len(ClusterLabel)
     assert "No neighbours (not tested)" in texts  # rows 5 and 13
-    fewer = maps.cluster_map(geoms, ["not significant"] * (len(geoms) - 1) + [ClusterLabel.HIGH_HIGH])
+    fewer = maps.cluster_map(
+        geoms, ["not significant"] * (len(geoms) - 1) + [ClusterLabel.HIGH_HIGH]
+    )
     assert legend_texts(fewer) == ["High cluster (high-high)", "Not significant"]
     (colls,) = district_collections(fig)
     by_gid = {c.get_gid(): c for c in colls}

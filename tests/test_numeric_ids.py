@@ -39,8 +39,14 @@ def body(path: Path) -> list[list[str]]:
         return [row for row in csv.reader(handle)][1:]
 
 
-def xlsx_week(tmp_path: Path, ids: list[str], *, boundary_ids: list[str] | None = None,
-              shapefile: bool = False, id_cell: Any = int) -> Any:
+def xlsx_week(
+    tmp_path: Path,
+    ids: list[str],
+    *,
+    boundary_ids: list[str] | None = None,
+    shapefile: bool = False,
+    id_cell: Any = int,
+) -> Any:
     """The invented week with both extracts as XLSX; boundaries as GeoPackage or Shapefile."""
     week = make_week(tmp_path / "week", ids=ids, pdf=False)
     table = write_xlsx(week.folder / "extract_2026-W47.xlsx", body(week.table), id_cell)
@@ -53,15 +59,32 @@ def xlsx_week(tmp_path: Path, ids: list[str], *, boundary_ids: list[str] | None 
         frame["AREA_CODE"] = [int(i) for i in frame["AREA_CODE"]]
         shp = week.folder / "districts.shp"
         frame.to_file(shp)
-        input_keys |= {"boundaries": shp.name, "boundaries_layer": None,
-                       "boundaries_id_column": "AREA_CODE", "boundaries_name_column": "AREA_NAME"}
+        input_keys |= {
+            "boundaries": shp.name,
+            "boundaries_layer": None,
+            "boundaries_id_column": "AREA_CODE",
+            "boundaries_name_column": "AREA_NAME",
+        }
     else:
         frame.to_file(week.boundaries, layer="districts", driver="GPKG")
-    columns = dict(zip(("district_id", "district_name", "week", "reporting_sites", "ili_visits",
-                        "total_visits"), XLSX_HEADER, strict=True))
+    columns = dict(
+        zip(
+            (
+                "district_id",
+                "district_name",
+                "week",
+                "reporting_sites",
+                "ili_visits",
+                "total_visits",
+            ),
+            XLSX_HEADER,
+            strict=True,
+        )
+    )
     week.raw["input"].pop("boundaries_layer", None) if shapefile else None
-    week.write_config(input={**{k: v for k, v in input_keys.items() if v is not None},
-                             "columns": columns})
+    week.write_config(
+        input={**{k: v for k, v in input_keys.items() if v is not None}, "columns": columns}
+    )
     return week
 
 
@@ -97,10 +120,14 @@ def test_codes_that_lost_a_leading_zero_need_the_padding_setting(tmp_path: Path)
     # one grouped line names how many ids and the setting; the per-id findings are in --json
     assert len(lines) == 1, out
     assert "13 districts, lines 2-14" in lines[0] and "input.id_zero_pad = 5" in lines[0]
-    code, out, _ = run_cli(["check", "--config", str(week.config_path), "--today", str(TODAY),
-                            "--json"])
+    code, out, _ = run_cli(
+        ["check", "--config", str(week.config_path), "--today", str(TODAY), "--json"]
+    )
     doc = json.loads(out)
-    assert sorted(f["district_id"] for f in doc["findings"] if f["rule"] == "id-leading-zeros") == CODES
+    assert (
+        sorted(f["district_id"] for f in doc["findings"] if f["rule"] == "id-leading-zeros")
+        == CODES
+    )
     week.write_config(input={"id_zero_pad": 5})
     result = build(week, archive=False)
     assert result.validation.errors == ()
@@ -118,7 +145,8 @@ def test_codes_that_are_not_whole_numbers_are_one_grouped_error(tmp_path: Path) 
     lines = [line for line in out.splitlines() if "id-numeric" in line]
     # one line per file: this week's extract and last week's
     assert [line.split()[2].split(":")[0] for line in lines] == [
-        "extract_2026-W47.xlsx", "extract_2026-W46.xlsx"
+        "extract_2026-W47.xlsx",
+        "extract_2026-W46.xlsx",
     ]
     rows = len(CODES) * 8
     assert f"{rows} cells, lines 2-{rows + 1}" in lines[0]
@@ -134,9 +162,17 @@ def test_a_fault_on_1000_rows_prints_a_screenful_and_validation_json_keeps_all(
     def with_rate(rows: list[list[str]]) -> list[list[str]]:
         return [r + [f"{1000 * int(r[4]) / int(r[5]):.3f}"] for r in rows]
 
-    week = make_week(tmp_path / "week", cols=5, rows=25, island=False, pdf=pdf,
-                     header=(*HEADER, "ili_rate"), edit_table=with_rate, edit_prior=with_rate,
-                     config={"input": {"columns": {"rate": "ili_rate"}}})
+    week = make_week(
+        tmp_path / "week",
+        cols=5,
+        rows=25,
+        island=False,
+        pdf=pdf,
+        header=(*HEADER, "ili_rate"),
+        edit_table=with_rate,
+        edit_prior=with_rate,
+        config={"input": {"columns": {"rate": "ili_rate"}}},
+    )
     code, out, _ = run_cli(["check", "--config", str(week.config_path), "--today", str(TODAY)])
     assert code == 0
     assert len(out.splitlines()) <= 10, out

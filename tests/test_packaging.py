@@ -49,9 +49,22 @@ def wheel(tmp_path_factory: pytest.TempPathFactory) -> Path:
         shutil.copytree(ROOT / folder, src / folder, ignore=shutil.ignore_patterns("__pycache__"))
     out = tmp_path_factory.mktemp("wheel")
     done = subprocess.run(
-        [sys.executable, "-m", "pip", "wheel", "--no-deps", "--no-build-isolation", "-q",
-         "-w", str(out), str(src)],
-        capture_output=True, text=True, timeout=300, check=False,
+        [
+            sys.executable,
+            "-m",
+            "pip",
+            "wheel",
+            "--no-deps",
+            "--no-build-isolation",
+            "-q",
+            "-w",
+            str(out),
+            str(src),
+        ],
+        capture_output=True,
+        text=True,
+        timeout=300,
+        check=False,
     )
     assert done.returncode == 0, done.stderr
     [path] = out.glob("sitrep-*.whl")
@@ -73,9 +86,14 @@ def test_wheel_ships_every_template_font_and_demo_input(wheel: Path) -> None:
     missing = sorted(m for m in modules if m not in names)
     assert missing == [], f"modules not in the wheel: {missing}"
     # the files named in the brief by hand too, so an emptied folder cannot pass
-    for name in ("sitrep/templates/sort_table.js", "sitrep/templates/report.html.j2",
-                 "sitrep/demo_inputs/sitrep.toml", "sitrep/demo_inputs/districts.gpkg",
-                 "sitrep/demo_inputs/extract_2026-W47.csv", "sitrep/demo_inputs/history.csv"):
+    for name in (
+        "sitrep/templates/sort_table.js",
+        "sitrep/templates/report.html.j2",
+        "sitrep/demo_inputs/sitrep.toml",
+        "sitrep/demo_inputs/districts.gpkg",
+        "sitrep/demo_inputs/extract_2026-W47.csv",
+        "sitrep/demo_inputs/history.csv",
+    ):
         assert name in names
 
 

@@ -72,7 +72,10 @@ def test_no_bar_before_the_delay_and_none_when_not_a_terminal() -> None:
     progress.step("analysis", 1, 3)
     progress.finish("analysis", 0.5)
     progress.close()
-    assert screen.getvalue() == f"  {'statistics and permutation tests (9,999 permutations)':<56}    0.5 s\n"
+    assert (
+        screen.getvalue()
+        == f"  {'statistics and permutation tests (9,999 permutations)':<56}    0.5 s\n"
+    )
     log = io.StringIO()  # a log file or a pipe
     plain = TextProgress(log, bar_after=0.0)
     plain.start("maps")
@@ -107,10 +110,12 @@ def test_progress_never_reaches_the_bundle(week, tmp_path: Path) -> None:  # typ
 
     config = week.config()
     quiet_cfg = dataclasses.replace(
-        config, output=dataclasses.replace(config.output, folder=tmp_path / "q", archive=tmp_path / "qa")
+        config,
+        output=dataclasses.replace(config.output, folder=tmp_path / "q", archive=tmp_path / "qa"),
     )
     loud_cfg = dataclasses.replace(
-        config, output=dataclasses.replace(config.output, folder=tmp_path / "l", archive=tmp_path / "la")
+        config,
+        output=dataclasses.replace(config.output, folder=tmp_path / "l", archive=tmp_path / "la"),
     )
     from sitrep import pipeline
 
@@ -125,7 +130,9 @@ def test_progress_never_reaches_the_bundle(week, tmp_path: Path) -> None:  # typ
 
 
 def test_cli_build_prints_plain_stage_lines_to_stderr_and_nothing_with_quiet(
-    week, tmp_path: Path, capsys: pytest.CaptureFixture[str]  # type: ignore[no-untyped-def]
+    week,
+    tmp_path: Path,
+    capsys: pytest.CaptureFixture[str],  # type: ignore[no-untyped-def]
 ) -> None:
     from sitrep import pipeline
 
@@ -144,7 +151,9 @@ def test_cli_build_prints_plain_stage_lines_to_stderr_and_nothing_with_quiet(
     assert "neighbours: " in out and "weights cache" not in out  # the cache in words
     assert "wrote " in out
     pipeline._GRAPH_CACHE.clear()
-    code = cli.main(["build", "--config", config, "--no-archive", "--quiet", "--today", TODAY.isoformat()])
+    code = cli.main(
+        ["build", "--config", config, "--no-archive", "--quiet", "--today", TODAY.isoformat()]
+    )
     out, err = capsys.readouterr()
     assert code == cli.EXIT_OK
     assert err == ""

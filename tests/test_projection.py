@@ -110,7 +110,9 @@ def test_maps_draw_at_the_true_size(case: str) -> None:
     assert np.allclose(projected.area.to_numpy(), geodesic_areas(layer), rtol=0.005)
     minx, _, maxx, _ = projected.total_bounds
     # roughly the length of the edge nearest the equator (meridians converge in the projection)
-    assert maxx - minx == pytest.approx(span * DEG_KM * 1000 * math.cos(math.radians(lat)), rel=0.02)
+    assert maxx - minx == pytest.approx(
+        span * DEG_KM * 1000 * math.cos(math.radians(lat)), rel=0.02
+    )
     fig = maps.change_map(projected.geometry, ["increase"] * len(layer), title=None, width_cm=8.4)
     assert fig.axes
 
@@ -180,7 +182,9 @@ def test_geojson_in_degrees_builds_with_maps(demo_build, tmp_path: Path) -> None
     # the same districts in the file's UTM zone give the same neighbours and clusters
     _, demo, _ = demo_build
     assert result.analysis.graph.neighbours == demo.analysis.graph.neighbours
-    assert list(result.analysis.table["cluster_label"]) == list(demo.analysis.table["cluster_label"])
+    assert list(result.analysis.table["cluster_label"]) == list(
+        demo.analysis.table["cluster_label"]
+    )
 
 
 def test_a_map_crs_in_degrees_is_refused_by_check_and_build(tmp_path: Path) -> None:
@@ -200,7 +204,9 @@ def test_a_map_crs_that_cannot_hold_the_layer_is_refused(tmp_path: Path) -> None
     assert [f.rule for f in report.errors] == ["map-projection-failed"]
 
 
-def test_check_verb_names_the_map_crs_setting(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+def test_check_verb_names_the_map_crs_setting(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
     src = demo_config(tmp_path).source
     text = src.read_text().replace(
         'boundaries_id_column = "district_id"',

@@ -23,6 +23,13 @@ def test_exported_names() -> None:
 def test_error_tree() -> None:
     from sitrep import errors
 
-    for name in ("ConfigError", "InputError", "ValidationFailed", "AnalysisError", "RenderError", "DeliveryError"):
+    for name in (
+        "ConfigError",
+        "InputError",
+        "ValidationFailed",
+        "AnalysisError",
+        "RenderError",
+        "DeliveryError",
+    ):
         assert issubclass(getattr(errors, name), errors.SitrepError)
     assert issubclass(errors.ArchiveExists, errors.DeliveryError)

@@ -176,7 +176,11 @@ def test_ids_are_text_stripped_and_nfc(tmp_path: Path) -> None:
     (note,) = report.findings
     stripped_lines = [line_of(rows, " 003", WEEKS[0]), line_of(rows, "003 ", WEEKS[1])]
     assert (note.rule, note.severity, note.line, note.column, note.value) == (
-        "id-whitespace-stripped", Severity.INFO, stripped_lines[0], "district_id", "2"
+        "id-whitespace-stripped",
+        Severity.INFO,
+        stripped_lines[0],
+        "district_id",
+        "2",
     )
     assert note.message.endswith(f"on lines {stripped_lines[0]}, {stripped_lines[1]}")
     w0 = table.frame[table.frame["week"] == EpiWeek(2026, 44, MMWR)]
@@ -270,7 +274,9 @@ def test_zero_pad_setting_pads_all_digit_ids_with_one_note(tmp_path: Path) -> No
     table, report = read(write_csv(tmp_path / "ids.csv", rows), id_zero_pad=3)
     (note,) = only(report, "id-zero-padded")
     assert (note.severity, note.line, note.value) == (
-        Severity.INFO, line_of(rows, "3", WEEKS[0]), "1"
+        Severity.INFO,
+        line_of(rows, "3", WEEKS[0]),
+        "1",
     )
     assert "3 -> 003" in note.message and "input.id_zero_pad = 3" in note.message
     assert set(table.frame["district_id"]) == set(IDS)
@@ -320,7 +326,9 @@ def test_parquet_integer_ids_are_read_as_digits_fractions_are_errors(tmp_path: P
     assert report.errors == ()
     assert set(table.frame["district_id"]) == {str(int(i)) for i in IDS}
     assert table.frame.attrs[NUMERIC_ID_LINES_ATTR] == tuple(range(2, len(rows) + 2))
-    data["district_id"] = [float(v) + (0.5 if k == 3 else 0.0) for k, v in enumerate(data["district_id"])]
+    data["district_id"] = [
+        float(v) + (0.5 if k == 3 else 0.0) for k, v in enumerate(data["district_id"])
+    ]
     pq.write_table(pa.table(data), tmp_path / "f.pq")
     table, report = read(tmp_path / "f.pq")
     (f,) = only(report, "id-numeric")
@@ -587,10 +595,17 @@ def test_declared_date_format_reads_us_dates_and_groups_cells_that_do_not_fit(
     # day-first cells under a month-first declaration (days 14, 21, 28 cannot be months): one
     # group for the column
     rows = [r[:2] + [end[r[2]].strftime("%d/%m/%Y")] + r[3:] for r in clean_rows(weeks=WEEKS[1:])]
-    table, report = read(write_csv(tmp_path / "eu.csv", rows, header),
-                         columns={"week_end": "week_ending"}, date_format="%m/%d/%Y")
+    table, report = read(
+        write_csv(tmp_path / "eu.csv", rows, header),
+        columns={"week_end": "week_ending"},
+        date_format="%m/%d/%Y",
+    )
     (group,) = ValidationReport(report.errors).grouped()
-    assert (group.rule, group.first.column, group.count) == ("week-invalid", "week_ending", len(rows))
+    assert (group.rule, group.first.column, group.count) == (
+        "week-invalid",
+        "week_ending",
+        len(rows),
+    )
     assert "input.date_format = '%m/%d/%Y'" in group.message() and "'14/11/2026'" in group.message()
 
 

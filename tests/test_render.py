@@ -46,7 +46,9 @@ def test_missing_field_fails_loudly(tmp_path: Path, demo_build) -> None:  # type
 
 def test_custom_template_folder_overrides_one_file(tmp_path: Path, demo_build) -> None:  # type: ignore[no-untyped-def]
     _, result, _ = demo_build
-    (tmp_path / "draft.md.j2").write_text("Custom draft for {{ c.jurisdiction }}\n", encoding="utf-8")
+    (tmp_path / "draft.md.j2").write_text(
+        "Custom draft for {{ c.jurisdiction }}\n", encoding="utf-8"
+    )
     assert render_markdown(result.context, tmp_path) == "Custom draft for Province of Quillmarsh\n"
     # the report itself still comes from the packaged template
     assert "<h1>" in render_html_module.render_html(result.context, tmp_path)
@@ -100,8 +102,7 @@ def test_one_past_season_says_which_thresholds_are_missing(tmp_path: Path) -> No
 
     lines = (DEMO / "history.csv").read_text(encoding="utf-8").splitlines()
     keep = [lines[0]] + [
-        line for line in lines[1:]
-        if re.search(r",(2025-W(4\d|5[0-3])|2026-W(0\d|[1-3]\d)),", line)
+        line for line in lines[1:] if re.search(r",(2025-W(4\d|5[0-3])|2026-W(0\d|[1-3]\d)),", line)
     ]
     history = tmp_path / "history_one_season.csv"
     history.write_text("\n".join(keep) + "\n", encoding="utf-8")
@@ -121,7 +122,10 @@ def test_one_past_season_says_which_thresholds_are_missing(tmp_path: Path) -> No
 def test_pdf_states_data_quality_plainly_and_the_html_lists_every_finding(demo_build) -> None:  # type: ignore[no-untyped-def]
     """The partner PDF names no rule id, file or line; the screen report and the annex list each."""
     config, result, folder = demo_build
-    items = tuple(QualityItem("warning", "value-spike", f"t.csv, line {i}", "X", f"finding {i}") for i in range(2, 42))
+    items = tuple(
+        QualityItem("warning", "value-spike", f"t.csv, line {i}", "X", f"finding {i}")
+        for i in range(2, 42)
+    )
     context = dataclasses.replace(result.context, quality=items)
     pdf_html = render_html_module.render_html(context, for_pdf=True)
     screen = render_html_module.render_html(context)
@@ -131,16 +135,33 @@ def test_pdf_states_data_quality_plainly_and_the_html_lists_every_finding(demo_b
     statement = result.context.quality_statement
     named = set(result.context.named_district_ids)
     revised = {f.district_id for f in result.validation.warnings if f.rule == "revision-large"}
-    names = dict(zip(result.analysis.table["district_id"], result.analysis.table["district_name"], strict=True))
+    names = dict(
+        zip(
+            result.analysis.table["district_id"],
+            result.analysis.table["district_name"],
+            strict=True,
+        )
+    )
     assert revised & named  # the demo's warnings concern districts page 1 names
     for i in revised:
         assert (names[i] in statement) == (i in named), i
     assert statement in render_html_module.render_html(result.context, for_pdf=True)
     # the internal annex lists every finding with rule, file, line and column
-    annex = list(csv.DictReader(io.StringIO((folder / "out" / "internal-data-quality.csv").read_text(encoding="utf-8-sig"))))
+    annex = list(
+        csv.DictReader(
+            io.StringIO(
+                (folder / "out" / "internal-data-quality.csv").read_text(encoding="utf-8-sig")
+            )
+        )
+    )
     assert len(annex) == len(result.validation.findings)
     row = next(r for r in annex if r["rule"] == "revision-large" and r["district_id"] in named)
-    assert row["file"] and row["line"].isdigit() and row["column"] and row["named_on_page_one"] == "true"
+    assert (
+        row["file"]
+        and row["line"].isdigit()
+        and row["column"]
+        and row["named_on_page_one"] == "true"
+    )
 
 
 def test_report_css_text_colours_meet_wcag_aa() -> None:
@@ -149,8 +170,14 @@ def test_report_css_text_colours_meet_wcag_aa() -> None:
 
     css = (TEMPLATES / "report.css").read_text(encoding="utf-8")
     colours = dict(re.findall(r"--([a-z]+): (#[0-9a-f]{6})", css))
-    pairs = [("ink", "#ffffff"), ("slate", "#ffffff"), ("muted", "#ffffff"), ("ink", colours["band"]),
-             ("muted", "#eef3f6"), ("slate", "#eef3f6")]
+    pairs = [
+        ("ink", "#ffffff"),
+        ("slate", "#ffffff"),
+        ("muted", "#ffffff"),
+        ("ink", colours["band"]),
+        ("muted", "#eef3f6"),
+        ("slate", "#eef3f6"),
+    ]
     for text, background in pairs:
         assert contrast_ratio(colours[text], background) >= 4.5, (text, background)
     for hex_colour in re.findall(r"color: (#[0-9a-f]{6})", css):

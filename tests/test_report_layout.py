@@ -114,7 +114,9 @@ def test_demo_pdf_has_at_most_six_a4_pages(demo_build, page_images) -> None:  # 
 def test_no_page_but_the_last_is_more_than_one_third_empty(page_images) -> None:  # type: ignore[no-untyped-def]
     shares = [empty_share(image) for image in page_images]
     for number, share in enumerate(shares[:-1], start=1):
-        assert share <= 1 / 3, f"page {number} is {share:.0%} empty ({[round(s, 2) for s in shares]})"
+        assert share <= 1 / 3, (
+            f"page {number} is {share:.0%} empty ({[round(s, 2) for s in shares]})"
+        )
 
 
 def test_page_one_holds_key_messages_tiles_and_trend_and_maps_start_on_page_two(demo_build) -> None:  # type: ignore[no-untyped-def]
@@ -246,7 +248,11 @@ def test_class_columns_sort_in_their_natural_order() -> None:
 def test_html_table_carries_the_sort_order(demo_build) -> None:  # type: ignore[no-untyped-def]
     _, result, _ = demo_build
     html = (result.bundle.path / "report.html").read_text(encoding="utf-8")
-    table = html[html.index('id="district-table"') : html.index("</table>", html.index('id="district-table"'))]
+    table = html[
+        html.index('id="district-table"') : html.index(
+            "</table>", html.index('id="district-table"')
+        )
+    ]
     assert table.count("data-order=") >= len(result.context.districts) * 5
     ids = [r.cells[0].text for r in result.context.district_table.rows]
     assert ids == sorted(ids, key=natural_key)

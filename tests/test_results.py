@@ -36,8 +36,19 @@ pytestmark = pytest.mark.slow
 ROOT = Path(__file__).resolve().parent.parent
 BOM = b"\xef\xbb\xbf"  # Unicode §23.8 / RFC 3629 §6
 NAMES = [
-    "Árvore Alta", "Brännoch", "Côte-Lumière", "Dunmere", "Eastfold", "Fennick", "Garrow",
-    "Holloway", "Ivel", "Juniper", "Kestrel", "Larkmoor", "Ñorrin Isle",
+    "Árvore Alta",
+    "Brännoch",
+    "Côte-Lumière",
+    "Dunmere",
+    "Eastfold",
+    "Fennick",
+    "Garrow",
+    "Holloway",
+    "Ivel",
+    "Juniper",
+    "Kestrel",
+    "Larkmoor",
+    "Ñorrin Isle",
 ]
 JURISDICTION = "Région des Marches"
 
@@ -71,7 +82,9 @@ def _rows(data: bytes) -> list[dict[str, str]]:
 # --------------------------------------------------------------------------- results.csv
 
 
-def test_csv_starts_with_a_bom_and_keeps_accents_json_is_plain_utf8(built: types.SimpleNamespace) -> None:
+def test_csv_starts_with_a_bom_and_keeps_accents_json_is_plain_utf8(
+    built: types.SimpleNamespace,
+) -> None:
     data = built.out["results.csv"]
     assert data.startswith(BOM) and not data[3:].startswith(BOM)
     rows = _rows(data)
@@ -103,7 +116,9 @@ def test_counts_are_whole_numbers_and_blanks_stay_blank(built: types.SimpleNames
     assert records["D03"]["reporting_sites"] is None
 
 
-def test_rows_carry_the_week_dates_and_jurisdiction_so_weeks_stack(built: types.SimpleNamespace) -> None:
+def test_rows_carry_the_week_dates_and_jurisdiction_so_weeks_stack(
+    built: types.SimpleNamespace,
+) -> None:
     reference = epiweeks.Week(2026, 47)  # MMWR, the library's default system
     rows = _rows(built.out["results.csv"])
     assert {(r["week"], r["week_start"], r["week_end"]) for r in rows} == {
@@ -141,7 +156,9 @@ def test_every_results_column_and_key_has_a_dictionary_entry(built: types.Simple
 def test_dictionary_is_in_the_docs_and_in_the_bundle(built: types.SimpleNamespace) -> None:
     import importlib.util
 
-    spec = importlib.util.spec_from_file_location("make_dict", ROOT / "tools" / "make_results_dictionary.py")
+    spec = importlib.util.spec_from_file_location(
+        "make_dict", ROOT / "tools" / "make_results_dictionary.py"
+    )
     assert spec is not None and spec.loader is not None
     tool = importlib.util.module_from_spec(spec)
     spec.loader.exec_module(tool)

@@ -78,7 +78,10 @@ def cli_run(*argv: str) -> tuple[int, str, str]:
 def page_one_text(pdf: Path) -> str:
     """Text of page 1 of a PDF (poppler's pdftotext), whitespace folded."""
     text = subprocess.run(
-        ["pdftotext", "-f", "1", "-l", "1", str(pdf), "-"], check=True, capture_output=True, text=True
+        ["pdftotext", "-f", "1", "-l", "1", str(pdf), "-"],
+        check=True,
+        capture_output=True,
+        text=True,
     ).stdout
     return " ".join(text.split())
 
@@ -129,7 +132,12 @@ def held(tmp_path_factory: pytest.TempPathFactory) -> Iterator[Held]:
         state_when_held = delivery_state(bundle).status
         steps["verify-draft"] = cli_run("verify", str(bundle))
         steps["approve"] = cli_run(
-            "approve", str(bundle), "--by", "Dr Ilsa Marrow", "--note", "revisions checked with the districts"
+            "approve",
+            str(bundle),
+            "--by",
+            "Dr Ilsa Marrow",
+            "--note",
+            "revisions checked with the districts",
         )
         steps["verify-approved"] = cli_run("verify", str(bundle))
         steps["run-approved"] = cli_run("run", "--config", str(config), "--today", MONDAY)
@@ -186,9 +194,14 @@ def test_approve_records_reviewer_time_and_note_outside_the_bundle(held: Held) -
     lines = record.read_bytes().splitlines()
     assert len(lines) == 1
     entry = json.loads(lines[0])
-    assert entry["by"] == "Dr Ilsa Marrow" and entry["note"] == "revisions checked with the districts"
+    assert (
+        entry["by"] == "Dr Ilsa Marrow" and entry["note"] == "revisions checked with the districts"
+    )
     assert entry["time"].endswith("Z")
-    assert entry["manifest_sha256"] == hashlib.sha256((held.bundle / "manifest.json").read_bytes()).hexdigest()
+    assert (
+        entry["manifest_sha256"]
+        == hashlib.sha256((held.bundle / "manifest.json").read_bytes()).hexdigest()
+    )
     assert entry["prev_sha256"] == "0" * 64
     assert {r["rule"] for r in entry["approved"]} == {"revision-large"}
     # the bundle itself still verifies: nothing was written inside it
@@ -243,8 +256,11 @@ def test_an_edited_review_record_approves_nothing(held: Held, tmp_path: Path) ->
     assert review_state(bundle, "on-warnings").status == "broken"
     # a sound approval line moved next to another bundle (another manifest) approves nothing
     other = write_bundle(
-        tmp_path / "arch", "Elsewhere", "2026-W47",
-        {"validation.json": (bundle / "validation.json").read_bytes()}, {"page_one_districts": []},
+        tmp_path / "arch",
+        "Elsewhere",
+        "2026-W47",
+        {"validation.json": (bundle / "validation.json").read_bytes()},
+        {"page_one_districts": []},
     )
     review_record_path(other.path).write_bytes(first + b"\n")
     state = review_state(other.path, "on-warnings")
@@ -321,7 +337,9 @@ def test_always_holds_a_clean_week_until_approved(tmp_path: Path) -> None:
         assert scheduled_run(loaded).status == "nothing-to-do" and len(handler.messages) == 1
 
 
-def test_dry_run_of_a_held_bundle_writes_the_eml_but_sends_nothing(held: Held, tmp_path: Path) -> None:
+def test_dry_run_of_a_held_bundle_writes_the_eml_but_sends_nothing(
+    held: Held, tmp_path: Path
+) -> None:
     bundle = writable_copy(held.pristine, tmp_path)
     code, out, err = cli_run("send", str(bundle), "--config", str(held.config), "--dry-run")
     assert code == 0, err
@@ -363,7 +381,10 @@ def test_hold_rules_on_warnings(tmp_path: Path) -> None:
         ([finding("warning", "revision-summary", None)], []),
         ([finding("error", "count-negative", "009")], [("count-negative", ("009",))]),
         (
-            [finding("warning", "revision-large", "002"), finding("warning", "revision-large", "001")],
+            [
+                finding("warning", "revision-large", "002"),
+                finding("warning", "revision-large", "001"),
+            ],
             [("revision-large", ("001", "002"))],
         ),
     ]
@@ -394,7 +415,9 @@ def test_approve_refuses_an_empty_name_and_a_blocked_run(held: Held, tmp_path: P
         approve_bundle(bundle, by="  ")
     with pytest.raises(ConfigError, match="line break"):
         approve_bundle(bundle, by="A", note="two\nlines")
-    blocked = fake_bundle(tmp_path / "blocked" / "v1", [finding("error", "count-negative", "001")], [])
+    blocked = fake_bundle(
+        tmp_path / "blocked" / "v1", [finding("error", "count-negative", "001")], []
+    )
     files = {"validation.json": (blocked / "validation.json").read_bytes()}
     made = write_bundle(tmp_path / "arch", "Blocked", "2026-W47", files, {"page_one_districts": []})
     with pytest.raises(ValidationFailed, match="blocked"):

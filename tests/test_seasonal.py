@@ -56,18 +56,119 @@ TESTED_71 = np.full(12, 400.0)
 CURRENT_71 = np.array([1.0, 1.1, 1.2, 1.1, 1.3, 1.5, 1.9, 2.4, 3.1])
 
 # docs/methods.md 7.2 worked example (invented, 3 seasons x 30 weeks, ILI%).
-A = np.array([.6, .7, .7, .8, .8, .9, .9, 1.0, 1.1, 1.2, 1.6, 2.4, 3.8, 5.6, 6.4, 5.0, 3.2, 2.0,
-              1.4, 1.1, 1.0, .9, .8, .8, .7, .7, .6, .6, .6, .5])
-B = np.array([.5, .6, .6, .7, .7, .8, .8, .9, .9, 1.0, 1.0, 1.1, 1.3, 1.8, 2.9, 4.6, 6.9, 7.8,
-              6.0, 3.9, 2.3, 1.5, 1.1, .9, .8, .7, .7, .6, .6, .6])
-C = np.array([.7, .7, .8, .9, 1.0, 1.1, 1.3, 1.9, 3.0, 4.3, 5.0, 4.1, 2.8, 1.8, 1.3, 1.1, 1.0, .9,
-              .9, .8, .8, .7, .7, .7, .6, .6, .6, .5, .5, .5])
+A = np.array(
+    [
+        0.6,
+        0.7,
+        0.7,
+        0.8,
+        0.8,
+        0.9,
+        0.9,
+        1.0,
+        1.1,
+        1.2,
+        1.6,
+        2.4,
+        3.8,
+        5.6,
+        6.4,
+        5.0,
+        3.2,
+        2.0,
+        1.4,
+        1.1,
+        1.0,
+        0.9,
+        0.8,
+        0.8,
+        0.7,
+        0.7,
+        0.6,
+        0.6,
+        0.6,
+        0.5,
+    ]
+)
+B = np.array(
+    [
+        0.5,
+        0.6,
+        0.6,
+        0.7,
+        0.7,
+        0.8,
+        0.8,
+        0.9,
+        0.9,
+        1.0,
+        1.0,
+        1.1,
+        1.3,
+        1.8,
+        2.9,
+        4.6,
+        6.9,
+        7.8,
+        6.0,
+        3.9,
+        2.3,
+        1.5,
+        1.1,
+        0.9,
+        0.8,
+        0.7,
+        0.7,
+        0.6,
+        0.6,
+        0.6,
+    ]
+)
+C = np.array(
+    [
+        0.7,
+        0.7,
+        0.8,
+        0.9,
+        1.0,
+        1.1,
+        1.3,
+        1.9,
+        3.0,
+        4.3,
+        5.0,
+        4.1,
+        2.8,
+        1.8,
+        1.3,
+        1.1,
+        1.0,
+        0.9,
+        0.9,
+        0.8,
+        0.8,
+        0.7,
+        0.7,
+        0.7,
+        0.6,
+        0.6,
+        0.6,
+        0.5,
+        0.5,
+        0.5,
+    ]
+)
 MEM_72 = {"A": A, "B": B, "C": C}
 
 
 def thresholds_tuple(m: MemThresholds) -> tuple[float | None, ...]:
-    return (m.epidemic_threshold, m.post_epidemic_threshold, m.medium_threshold,
-            m.high_threshold, m.very_high_threshold)
+    return (
+        m.epidemic_threshold,
+        m.post_epidemic_threshold,
+        m.medium_threshold,
+        m.high_threshold,
+        m.very_high_threshold,
+    )
 
 
 # --------------------------------------------------------------------------- 7.1 baseline
@@ -86,7 +187,13 @@ def test_share_rule_needs_runs_of_two() -> None:
     pos = np.array([50.0, 1.0, 30.0, 1.0, 1.0, 17.0])
     assert non_influenza_weeks_by_share(pos).tolist() == [False, False, False, True, True, False]
     assert non_influenza_weeks_by_share(pos, min_run=1).tolist() == [
-        False, True, False, True, True, False]
+        False,
+        True,
+        False,
+        True,
+        True,
+        False,
+    ]
 
 
 def test_baseline_share_rule_methods_71() -> None:
@@ -202,10 +309,16 @@ def test_baseline_from_nonepidemic_small_hand_case() -> None:
     # hand: weeks outside the periods are {1, 1.2, 1} {0.8, 1.1, 0.9} {1, 1, 1.2}:
     # mean 9.2/9 = 1.022222, sum of squared deviations 0.135556, SD(n-1) = sqrt(0.135556/8)
     # = 0.130171 -> 1.022222 + 2 * 0.130171 = 1.282564 -> 1.3.
-    seasons = {"a": [1.0, 1.2, 5.0, 6.0, 1.0], "b": [0.8, 4.0, 7.0, 1.1, 0.9],
-               "c": [1.0, 1.0, 3.0, 5.0, 1.2]}
-    periods = [EpidemicPeriod("a", 3, 4, 2, 0.0, 5), EpidemicPeriod("b", 2, 3, 2, 0.0, 5),
-               EpidemicPeriod("c", 3, 4, 2, 0.0, 5)]
+    seasons = {
+        "a": [1.0, 1.2, 5.0, 6.0, 1.0],
+        "b": [0.8, 4.0, 7.0, 1.1, 0.9],
+        "c": [1.0, 1.0, 3.0, 5.0, 1.2],
+    }
+    periods = [
+        EpidemicPeriod("a", 3, 4, 2, 0.0, 5),
+        EpidemicPeriod("b", 2, 3, 2, 0.0, 5),
+        EpidemicPeriod("c", 3, 4, 2, 0.0, 5),
+    ]
     b = baseline_from_nonepidemic(seasons, periods)
     assert b.mean == pytest.approx(9.2 / 9, abs=TOL)
     assert b.sd == pytest.approx(0.130171, abs=TOL)
@@ -291,7 +404,8 @@ def test_mem_thresholds_ci_form_n2_methods_72() -> None:
     assert t.form is IntervalForm.CI_T
     assert t.epidemic_threshold == pytest.approx(1.218295, abs=TOL)
     assert mem_thresholds(MEM_72, n_per_season=2, form="ci").epidemic_threshold == (
-        m.epidemic_threshold)
+        m.epidemic_threshold
+    )
 
 
 def test_mem_thresholds_default_n_methods_72() -> None:
@@ -314,8 +428,10 @@ def test_mem_smoothed_slope_methods_72_note() -> None:
     assert smooth[8] == pytest.approx(2.840, abs=5e-4)
     p = epidemic_period(B, slope=MapSlope.SMOOTHED)
     assert (p.start_week, p.end_week, p.length) == (14, 22, 9)
-    assert (epidemic_period(A, slope=MapSlope.SMOOTHED).start_week,
-            epidemic_period(C, slope=MapSlope.SMOOTHED).end_week) == (11, 15)
+    assert (
+        epidemic_period(A, slope=MapSlope.SMOOTHED).start_week,
+        epidemic_period(C, slope=MapSlope.SMOOTHED).end_week,
+    ) == (11, 15)
     m = mem_thresholds(MEM_72, n_per_season=2, slope=MapSlope.SMOOTHED)
     assert m.slope is MapSlope.SMOOTHED
     assert [(q.start_week, q.end_week) for q in m.periods] == [(11, 19), (14, 22), (7, 15)]
@@ -357,8 +473,10 @@ def test_flat_short_seasons_are_all_epidemic_and_thresholds_unavailable() -> Non
     m = mem_thresholds({"x": np.full(30, 2.0), "y": np.full(30, 1.0)})
     assert not m.available
     assert thresholds_tuple(m) == (None,) * 5
-    assert m.reason == ("Epidemic thresholds are not available: 0 pre-epidemic week value(s) "
-                        "in the 2 seasons used, at least 2 are needed.")
+    assert m.reason == (
+        "Epidemic thresholds are not available: 0 pre-epidemic week value(s) "
+        "in the 2 seasons used, at least 2 are needed."
+    )
     assert len(m.periods) == 2
 
 
@@ -401,19 +519,25 @@ def test_53_week_season() -> None:
     m = mem_thresholds({"2019-20": A, "2020-21": s}, n_per_season=2)
     assert m.available and m.periods[1].n_weeks == 53
     assert same_week_past_seasons({"2019-20": A, "2020-21": s}, 53) == (
-        ("2019-20", None), ("2020-21", 10.0))
+        ("2019-20", None),
+        ("2020-21", 10.0),
+    )
 
 
 def test_fewer_seasons_than_needed() -> None:
     one = mem_thresholds({"2023-24": A})
     assert not one.available
     assert thresholds_tuple(one) == (None,) * 5  # None, never 0
-    assert one.reason == ("Epidemic thresholds are not available: 1 past season in the "
-                          "history, at least 2 are needed.")
+    assert one.reason == (
+        "Epidemic thresholds are not available: 1 past season in the "
+        "history, at least 2 are needed."
+    )
     assert one.seasons_used == ("2023-24",)
     none = mem_thresholds({})
-    assert none.reason == ("Epidemic thresholds are not available: 0 past seasons in the "
-                           "history, at least 2 are needed.")
+    assert none.reason == (
+        "Epidemic thresholds are not available: 0 past seasons in the "
+        "history, at least 2 are needed."
+    )
     three = mem_thresholds(MEM_72, min_seasons=5)
     assert "3 past seasons in the history, at least 5 are needed" in three.reason
     # an all-missing season does not count as usable
@@ -443,8 +567,9 @@ def test_nan_week_is_interpolated_not_zero_filled() -> None:
     assert thresholds_tuple(with_nan) == pytest.approx(thresholds_tuple(explicit), abs=1e-12)
     assert with_nan.medium_threshold != pytest.approx(zeroed.medium_threshold, abs=1e-3)
     # leading / trailing NaN take the nearest reported value
-    np.testing.assert_array_equal(interpolate_missing([np.nan, 2.0, np.nan, 4.0, np.nan]),
-                                  [2.0, 2.0, 3.0, 4.0, 4.0])
+    np.testing.assert_array_equal(
+        interpolate_missing([np.nan, 2.0, np.nan, 4.0, np.nan]), [2.0, 2.0, 3.0, 4.0, 4.0]
+    )
 
 
 def test_at_most_ten_most_recent_seasons() -> None:
@@ -499,19 +624,34 @@ def test_intensity_medium_below_epidemic_threshold_skips_low() -> None:
 
 def test_intensity_enum_text() -> None:
     assert [level.value for level in IntensityLevel] == [
-        "not available", "below epidemic threshold", "low", "medium", "high", "very high"]
+        "not available",
+        "below epidemic threshold",
+        "low",
+        "medium",
+        "high",
+        "very high",
+    ]
 
 
 # --------------------------------------------------------------------------- same week
 
 
 def test_same_week_past_seasons_sorted_and_missing() -> None:
-    past = {"2023-24": np.array([1.0, 2.5, 3.0]), "2021-22": np.array([0.5, np.nan]),
-            "2022-23": np.array([0.7, 1.9, 2.2])}
+    past = {
+        "2023-24": np.array([1.0, 2.5, 3.0]),
+        "2021-22": np.array([0.5, np.nan]),
+        "2022-23": np.array([0.7, 1.9, 2.2]),
+    }
     assert same_week_past_seasons(past, 2) == (
-        ("2021-22", None), ("2022-23", 1.9), ("2023-24", 2.5))
+        ("2021-22", None),
+        ("2022-23", 1.9),
+        ("2023-24", 2.5),
+    )
     assert same_week_past_seasons(past, 3) == (
-        ("2021-22", None), ("2022-23", 2.2), ("2023-24", 3.0))
+        ("2021-22", None),
+        ("2022-23", 2.2),
+        ("2023-24", 3.0),
+    )
     assert same_week_past_seasons({}, 1) == ()
     with pytest.raises(ValueError, match="season_week must be >= 1 .1-based., got 0"):
         same_week_past_seasons(past, 0)

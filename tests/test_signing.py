@@ -55,7 +55,13 @@ def keys(tmp_path: Path) -> tuple[Signer, Path]:
 
 def _write(root: Path, week: str, signer: Signer | None, reissue: str | None = None) -> Path:
     return write_bundle(
-        root, JURISDICTION, week, FILES, {"report_week": week}, reissue_reason=reissue, signer=signer
+        root,
+        JURISDICTION,
+        week,
+        FILES,
+        {"report_week": week},
+        reissue_reason=reissue,
+        signer=signer,
     ).path
 
 
@@ -75,9 +81,7 @@ def _rewrite(bundle: Path, name: str, data: bytes, *, drop_signature: bool = Fal
         for p in bundle.rglob("*")
         if p.is_file() and p.name not in (MANIFEST_SHA256, SIGNATURE_FILE)
     )
-    sums = "".join(
-        f"{hashlib.sha256((bundle / n).read_bytes()).hexdigest()}  {n}\n" for n in names
-    )
+    sums = "".join(f"{hashlib.sha256((bundle / n).read_bytes()).hexdigest()}  {n}\n" for n in names)
     (bundle / MANIFEST_SHA256).write_text(sums)
 
 
@@ -104,7 +108,9 @@ def test_ed25519_matches_the_rfc_8032_test_vector() -> None:
 # --------------------------------------------------------------------------- keys
 
 
-def test_keys_init_writes_a_private_0600_and_a_public_key_and_never_overwrites(tmp_path: Path) -> None:
+def test_keys_init_writes_a_private_0600_and_a_public_key_and_never_overwrites(
+    tmp_path: Path,
+) -> None:
     files = generate_keys(tmp_path / "k")
     assert stat.S_IMODE(files.private.stat().st_mode) == 0o600
     assert stat.S_IMODE((tmp_path / "k").stat().st_mode) == 0o700
@@ -128,9 +134,7 @@ def test_cli_keys_init_prints_the_fingerprint_and_refuses_a_second_time(
 
 
 @pytest.mark.parametrize("case", ["missing", "readable", "garbage", "public", "rsa"])
-def test_an_unusable_signing_key_is_a_named_configuration_error(
-    tmp_path: Path, case: str
-) -> None:
+def test_an_unusable_signing_key_is_a_named_configuration_error(tmp_path: Path, case: str) -> None:
     files = generate_keys(tmp_path / "k")
     path = files.private
     if case == "missing":
@@ -146,12 +150,20 @@ def test_an_unusable_signing_key_is_a_named_configuration_error(
         from cryptography.hazmat.primitives.asymmetric import rsa
 
         rsa_key = rsa.generate_private_key(public_exponent=65537, key_size=2048)
-        path.write_bytes(rsa_key.private_bytes(
-            serialization.Encoding.PEM, serialization.PrivateFormat.PKCS8,
-            serialization.NoEncryption(),
-        ))
-    expected = {"missing": "not found", "readable": "chmod 600", "garbage": "not a PEM private",
-                "public": "not a PEM private", "rsa": "not an Ed25519"}[case]
+        path.write_bytes(
+            rsa_key.private_bytes(
+                serialization.Encoding.PEM,
+                serialization.PrivateFormat.PKCS8,
+                serialization.NoEncryption(),
+            )
+        )
+    expected = {
+        "missing": "not found",
+        "readable": "chmod 600",
+        "garbage": "not a PEM private",
+        "public": "not a PEM private",
+        "rsa": "not an Ed25519",
+    }[case]
     with pytest.raises(ConfigError, match=expected) as info:
         load_signer(path)
     assert str(path) in str(info.value)
@@ -210,9 +222,11 @@ def test_a_rewrite_re_signed_with_another_key_is_not_trusted(
     manifest["signature"]["fingerprint"] = forger.public.fingerprint
     (bundle / MANIFEST_JSON).write_bytes(manifest_bytes(manifest))
     _rewrite(bundle, "results.csv", b"district_id,ili\n001,40\n")  # recompute the sums again
-    (bundle / SIGNATURE_FILE).write_bytes(signature_document(
-        forger, "2026-W47/v1", (bundle / MANIFEST_SHA256).read_bytes(), dt.datetime.now(dt.UTC)
-    ))
+    (bundle / SIGNATURE_FILE).write_bytes(
+        signature_document(
+            forger, "2026-W47/v1", (bundle / MANIFEST_SHA256).read_bytes(), dt.datetime.now(dt.UTC)
+        )
+    )
     assert verify_bundle(bundle).ok  # self-consistent ...
     result = verify_bundle(bundle, (load_public_key(public),))
     assert not result.ok and result.signature == "untrusted-key"  # ... but not by the trusted key
@@ -259,10 +273,12 @@ def test_the_pipeline_refuses_a_build_without_the_key_once_a_bundle_is_signed(
     signer, _ = keys
     _write(tmp_path / "a", "2026-W46", signer)
     monkeypatch.delenv("SITREP_SIGNING_KEY", raising=False)
-    config = config_from_dict({
-        "report": {"jurisdiction": JURISDICTION},
-        "output": {"archive": str(tmp_path / "a")},
-    })
+    config = config_from_dict(
+        {
+            "report": {"jurisdiction": JURISDICTION},
+            "output": {"archive": str(tmp_path / "a")},
+        }
+    )
     with pytest.raises(ConfigError, match="no signing key is configured"):
         _signer(config)
     monkeypatch.setenv("SITREP_SIGNING_KEY", str(signer.public.source))
@@ -284,9 +300,9 @@ def test_a_chain_of_weeks_and_a_reissue_verifies(tmp_path: Path, keys: tuple[Sig
     folder = _archive_of_four(tmp_path / "a", signer)
     report = verify_chain(folder, (load_public_key(public),))
     assert report.ok, report.first_break
-    assert [(r.bundle_id, r.sequence) for r in sorted(report.links, key=lambda r: r.sequence or 0)] == [
-        ("2026-W44/v1", 1), ("2026-W45/v1", 2), ("2026-W46/v1", 3), ("2026-W45/v2", 4)
-    ]
+    assert [
+        (r.bundle_id, r.sequence) for r in sorted(report.links, key=lambda r: r.sequence or 0)
+    ] == [("2026-W44/v1", 1), ("2026-W45/v1", 2), ("2026-W46/v1", 3), ("2026-W45/v2", 4)]
     assert report.head is not None and report.head.bundle_id == "2026-W45/v2"
 
 

@@ -26,15 +26,17 @@ from sitrep.starter import propose
 
 def _exports(folder: Path) -> tuple[Path, Path]:
     t = pd.read_csv(DEMO / "extract_2026-W47.csv", dtype={"district_id": str})
-    table = pd.DataFrame({
-        "Health District Code": t["district_id"],
-        "District": t["district_name"],
-        "Epi Yr": t["epi_week"].str[:4].astype(int),
-        "Wk": t["epi_week"].str[6:].astype(int),
-        "ILI pts": t["ili_visits"],
-        "Total Pts Seen": t["total_visits"],
-        "No. of Sentinel Sites": t["reporting_sites"],
-    })
+    table = pd.DataFrame(
+        {
+            "Health District Code": t["district_id"],
+            "District": t["district_name"],
+            "Epi Yr": t["epi_week"].str[:4].astype(int),
+            "Wk": t["epi_week"].str[6:].astype(int),
+            "ILI pts": t["ili_visits"],
+            "Total Pts Seen": t["total_visits"],
+            "No. of Sentinel Sites": t["reporting_sites"],
+        }
+    )
     xlsx = folder / "ili export.xlsx"
     with pd.ExcelWriter(xlsx) as book:
         pd.DataFrame({"About": ["Weekly ILI export", "one row per district and week"]}).to_excel(
@@ -58,8 +60,19 @@ def test_init_on_unusual_exports_gives_a_config_that_builds(
 ) -> None:
     xlsx, shp = _exports(tmp_path)
     cfg = tmp_path / "sitrep.toml"
-    code = cli.main(["init", "--table", str(xlsx), "--boundaries", str(shp), "--out", str(cfg),
-                     "--today", TODAY.isoformat()])
+    code = cli.main(
+        [
+            "init",
+            "--table",
+            str(xlsx),
+            "--boundaries",
+            str(shp),
+            "--out",
+            str(cfg),
+            "--today",
+            TODAY.isoformat(),
+        ]
+    )
     out = capsys.readouterr().out
     assert code == cli.EXIT_OK, out
     assert "no findings" in out or "0 error(s)" in out
@@ -68,9 +81,14 @@ def test_init_on_unusual_exports_gives_a_config_that_builds(
     assert doc["input"]["boundaries_name_column"] == "DISTRICT_N"
     assert doc["input"]["sheet"] == "Data"
     assert doc["input"]["columns"] == {
-        "district_id": "Health District Code", "district_name": "District", "week": "",
-        "year": "Epi Yr", "week_number": "Wk", "ili_visits": "ILI pts",
-        "total_visits": "Total Pts Seen", "reporting_sites": "No. of Sentinel Sites",
+        "district_id": "Health District Code",
+        "district_name": "District",
+        "week": "",
+        "year": "Epi Yr",
+        "week_number": "Wk",
+        "ili_visits": "ILI pts",
+        "total_visits": "Total Pts Seen",
+        "reporting_sites": "No. of Sentinel Sites",
     }
     text = cfg.read_text(encoding="utf-8")
     assert text.count("# GUESS") >= 10
@@ -78,7 +96,10 @@ def test_init_on_unusual_exports_gives_a_config_that_builds(
         if line.startswith(("district_id =", "boundaries_id_column =", "ili_visits =")):
             assert "# GUESS" in line
     # a second init does not overwrite the file
-    assert cli.main(["init", "--table", str(xlsx), "--boundaries", str(shp), "--out", str(cfg)]) == cli.EXIT_USAGE
+    assert (
+        cli.main(["init", "--table", str(xlsx), "--boundaries", str(shp), "--out", str(cfg)])
+        == cli.EXIT_USAGE
+    )
     capsys.readouterr()
     code = cli.main(["build", "--config", str(cfg), "--today", TODAY.isoformat(), "--no-archive"])
     out = capsys.readouterr().out
@@ -93,11 +114,15 @@ def test_init_reads_dates_and_a_percent_column(tmp_path: Path) -> None:
     # week-ending Saturdays (MMWR weeks end on Saturday) and a rate in percent, in a ';' CSV
     t = pd.read_csv(DEMO / "extract_2026-W47.csv", dtype={"district_id": str})
     t = t[t["epi_week"] == "2026-W47"]
-    table = pd.DataFrame({
-        "code": t["district_id"], "wk_ending": "2026-11-28", "ili": t["ili_visits"],
-        "all_visits": t["total_visits"],
-        "ili_pct": (t["ili_visits"] / t["total_visits"] * 100).round(3),
-    })
+    table = pd.DataFrame(
+        {
+            "code": t["district_id"],
+            "wk_ending": "2026-11-28",
+            "ili": t["ili_visits"],
+            "all_visits": t["total_visits"],
+            "ili_pct": (t["ili_visits"] / t["total_visits"] * 100).round(3),
+        }
+    )
     path = tmp_path / "week.csv"
     table.to_csv(path, sep=";", index=False)
     prop = propose(path, DEMO / "districts.gpkg")
@@ -106,8 +131,12 @@ def test_init_reads_dates_and_a_percent_column(tmp_path: Path) -> None:
     assert prop.boundaries_id[0] == "district_id" and prop.layer == "districts"
     assert prop.columns["week_end"][0] == "wk_ending"
     assert prop.week_system[0] == "mmwr"
-    assert prop.columns["ili_visits"][0] == "ili" and prop.columns["total_visits"][0] == "all_visits"
-    assert prop.columns["rate"][0] == "ili_pct" and prop.rate_scale and prop.rate_scale[0] == "percent"
+    assert (
+        prop.columns["ili_visits"][0] == "ili" and prop.columns["total_visits"][0] == "all_visits"
+    )
+    assert (
+        prop.columns["rate"][0] == "ili_pct" and prop.rate_scale and prop.rate_scale[0] == "percent"
+    )
 
 
 def test_init_says_when_no_id_matches(tmp_path: Path) -> None:
@@ -115,6 +144,15 @@ def test_init_says_when_no_id_matches(tmp_path: Path) -> None:
     path.write_text("area,week,ili,total\nX1,2026-W47,1,10\n", encoding="utf-8")
     with pytest.raises(InputError, match="district ids must be written the same way"):
         propose(path, DEMO / "districts.gpkg")
-    code = cli.main(["init", "--table", str(path), "--boundaries", str(DEMO / "districts.gpkg"),
-                     "--out", str(tmp_path / "c.toml")])
+    code = cli.main(
+        [
+            "init",
+            "--table",
+            str(path),
+            "--boundaries",
+            str(DEMO / "districts.gpkg"),
+            "--out",
+            str(tmp_path / "c.toml"),
+        ]
+    )
     assert code == cli.EXIT_BLOCKED and not (tmp_path / "c.toml").exists()

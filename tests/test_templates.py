@@ -89,7 +89,8 @@ def test_listing_without_copy_names_the_folder(capsys: pytest.CaptureFixture[str
 
 
 @pytest.mark.parametrize(
-    "name", [t.name for t in TEMPLATES if not t.included_by and any(v[0] == "c" for v in t.variables)]
+    "name",
+    [t.name for t in TEMPLATES if not t.included_by and any(v[0] == "c" for v in t.variables)],
 )
 def test_fields_each_template_uses_match_the_template_text(name: str) -> None:
     text = (packaged_template_dir() / name).read_text(encoding="utf-8")
@@ -101,7 +102,9 @@ def test_fields_each_template_uses_match_the_template_text(name: str) -> None:
 
 
 def test_docs_templates_page_is_generated_from_the_code() -> None:
-    spec = importlib.util.spec_from_file_location("make_doc", ROOT / "tools" / "make_templates_doc.py")
+    spec = importlib.util.spec_from_file_location(
+        "make_doc", ROOT / "tools" / "make_templates_doc.py"
+    )
     assert spec is not None and spec.loader is not None
     tool = importlib.util.module_from_spec(spec)
     spec.loader.exec_module(tool)
@@ -117,8 +120,12 @@ def test_docs_templates_page_is_generated_from_the_code() -> None:
 def test_an_unchanged_copy_has_no_problems_and_a_broken_one_is_located(tmp_path: Path) -> None:
     copy_templates(tmp_path)
     assert template_problems(tmp_path) == []
-    (tmp_path / "email.txt.j2").write_text("{{ c.title }}\n\n{% if c.contact %}\n", encoding="utf-8")
-    (tmp_path / "draft.md.j2").write_text("{% set x = 1 %}{{ x }} {{ c.no_such_field }}\n", encoding="utf-8")
+    (tmp_path / "email.txt.j2").write_text(
+        "{{ c.title }}\n\n{% if c.contact %}\n", encoding="utf-8"
+    )
+    (tmp_path / "draft.md.j2").write_text(
+        "{% set x = 1 %}{{ x }} {{ c.no_such_field }}\n", encoding="utf-8"
+    )
     problems = {name: (line, message) for name, line, message in template_problems(tmp_path)}
     assert set(problems) == {"email.txt.j2", "draft.md.j2"}
     assert problems["email.txt.j2"][0] == 3 and "cannot be parsed" in problems["email.txt.j2"][1]

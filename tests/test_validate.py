@@ -239,14 +239,22 @@ def test_district_with_no_visits_and_no_sites_is_a_located_warning(tmp_path: Pat
     closed = changed(rows, "004", WEEKS[3], "reporting_sites", "0")
     f = one(validate_table(table(tmp_path, closed), None, VS), "district-no-visits")
     assert (f.severity, f.line, f.column, f.district_id) == (
-        Severity.WARNING, line_of(closed, "004", WEEKS[3]), "total_visits", "004"
+        Severity.WARNING,
+        line_of(closed, "004", WEEKS[3]),
+        "total_visits",
+        "004",
     )
     assert "0 reporting sites" in f.message and "closed" in f.message
     # with sites reporting, the message says so; a past week with no visits is not this rule
     f = one(validate_table(table(tmp_path, rows), None, VS), "district-no-visits")
     assert "although 3 sites reported" in f.message  # counts(3, w): 3 + 3 % 3 sites
-    past = changed(changed(clean_rows(), "004", WEEKS[1], "total_visits", "0"),
-                   "004", WEEKS[1], "ili_visits", "0")
+    past = changed(
+        changed(clean_rows(), "004", WEEKS[1], "total_visits", "0"),
+        "004",
+        WEEKS[1],
+        "ili_visits",
+        "0",
+    )
     assert "district-no-visits" not in rules(validate_table(table(tmp_path, past), None, VS))
 
 
@@ -368,7 +376,9 @@ def test_spike_robust_z(tmp_path: Path) -> None:
 def test_spike_rule_allows_for_binomial_noise_in_small_districts(tmp_path: Path) -> None:
     # 1,000 visits: SE of 2% = 100*sqrt(0.02*0.98/1000) = 0.443 pp [HAND], so 2.6% gives z = 1.4
     vs = dataclasses.replace(VS, spike_mad_floor_pp=0.1)
-    assert validate_table(table(tmp_path, _spike_rows(26, visits_scale=100)), None, vs).findings == ()
+    assert (
+        validate_table(table(tmp_path, _spike_rows(26, visits_scale=100)), None, vs).findings == ()
+    )
 
 
 def _rising_week(n: int = 30, jump: dict[str, float] | None = None) -> list[list[str]]:
@@ -421,7 +431,9 @@ def test_spike_rule_with_only_the_prior_week_catches_a_ten_fold_jump(tmp_path: P
     plain = _rising_week()
     prior = table(tmp_path, [r for r in plain if r[2] == w45])
     current = table(tmp_path, [r for r in plain if r[2] == w46])
-    assert "value-spike" not in rules(validate_table(current, None, VS, weekly_file=True, prior=prior))
+    assert "value-spike" not in rules(
+        validate_table(current, None, VS, weekly_file=True, prior=prior)
+    )
 
 
 # ----------------------------------------------------------------------------- against the prior table

@@ -45,7 +45,12 @@ def test_date_to_week_table(day: str, mmwr: str, iso: str) -> None:
 # Published ISO examples (PostgreSQL EXTRACT(week) documentation, per docs/methods.md §1.2 [PUB]).
 @pytest.mark.parametrize(
     ("day", "iso"),
-    [("2005-01-01", "2004-W53"), ("2006-01-01", "2005-W52"), ("2012-12-31", "2013-W01"), ("1970-01-01", "1970-W01")],
+    [
+        ("2005-01-01", "2004-W53"),
+        ("2006-01-01", "2005-W52"),
+        ("2012-12-31", "2013-W01"),
+        ("1970-01-01", "1970-W01"),
+    ],
 )
 def test_published_iso_examples(day: str, iso: str) -> None:
     assert str(EpiWeek.from_date(dt.date.fromisoformat(day), ISO)) == iso
@@ -92,9 +97,15 @@ def test_week_dates() -> None:
 @pytest.mark.parametrize(
     ("label", "season", "index"),
     # docs/methods.md §1.3 check values [LIB, epiweeks]
-    [("2014-W53", "2014-15", 14), ("2015-W01", "2014-15", 15), ("2015-W39", "2014-15", 53),
-     ("2015-W40", "2015-16", 1), ("2019-W52", "2019-20", 13), ("2020-W20", "2019-20", 33),
-     ("2020-W53", "2020-21", 14)],
+    [
+        ("2014-W53", "2014-15", 14),
+        ("2015-W01", "2014-15", 15),
+        ("2015-W39", "2014-15", 53),
+        ("2015-W40", "2015-16", 1),
+        ("2019-W52", "2019-20", 13),
+        ("2020-W20", "2019-20", 33),
+        ("2020-W53", "2020-21", 14),
+    ],
 )
 def test_season_labels(label: str, season: str, index: int) -> None:
     assert season_of(EpiWeek.parse(label, MMWR)) == (season, index)

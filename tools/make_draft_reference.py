@@ -31,7 +31,11 @@ def main() -> None:
     normal.font.name = "DejaVu Sans"
     normal.font.size = Pt(10.5)
     normal.font.color.rgb = INK
-    for name, size, colour in (("Title", 20, HEADING), ("Heading 1", 16, HEADING), ("Heading 2", 12.5, SUBHEADING)):
+    for name, size, colour in (
+        ("Title", 20, HEADING),
+        ("Heading 1", 16, HEADING),
+        ("Heading 2", 12.5, SUBHEADING),
+    ):
         style = styles[name]
         style.font.name = "DejaVu Sans"
         style.font.size = Pt(size)

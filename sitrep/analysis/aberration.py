@@ -175,8 +175,7 @@ def _check_settings(sd_floor: float, min_baseline_weeks: int) -> None:
         raise ValueError(f"sd_floor must be a finite number >= 0, got {sd_floor!r}")
     if not 2 <= min_baseline_weeks <= BASELINE_WEEKS:
         raise ValueError(
-            f"min_baseline_weeks must be between 2 and {BASELINE_WEEKS}, "
-            f"got {min_baseline_weeks!r}"
+            f"min_baseline_weeks must be between 2 and {BASELINE_WEEKS}, got {min_baseline_weeks!r}"
         )
 
 
@@ -290,8 +289,14 @@ def aberration_series(
     if was_1d:
         c1, c2, c3, a1, a2, a3 = c1[0], c2[0], c3[0], a1[0], a2[0], a3[0]
     return AberrationSeries(
-        c1=c1, c2=c2, c3=c3, c1_alarm=a1, c2_alarm=a2, c3_alarm=a3,
-        sd_floor=float(sd_floor), min_baseline_weeks=min_baseline_weeks,
+        c1=c1,
+        c2=c2,
+        c3=c3,
+        c1_alarm=a1,
+        c2_alarm=a2,
+        c3_alarm=a3,
+        sd_floor=float(sd_floor),
+        min_baseline_weeks=min_baseline_weeks,
     )
 
 
@@ -387,10 +392,18 @@ def aberration_this_week(
         col = arr[:, t].copy()
         return AberrationStatistic(name, col, _alarm(col, threshold), threshold, tuple(reasons))
 
-    r1 = ["" if not np.isnan(c1[i, t]) else
-          _reason("C1", t, C1_LAGS, y, n1, sd1, min_baseline_weeks, i) for i in range(d)]
-    r2 = ["" if not np.isnan(c2[i, t]) else
-          _reason("C2", t, C2_LAGS, y, n2, sd2, min_baseline_weeks, i) for i in range(d)]
+    r1 = [
+        ""
+        if not np.isnan(c1[i, t])
+        else _reason("C1", t, C1_LAGS, y, n1, sd1, min_baseline_weeks, i)
+        for i in range(d)
+    ]
+    r2 = [
+        ""
+        if not np.isnan(c2[i, t])
+        else _reason("C2", t, C2_LAGS, y, n2, sd2, min_baseline_weeks, i)
+        for i in range(d)
+    ]
     r3: list[str] = []
     for i in range(d):
         if not np.isnan(c3[i, t]):
@@ -401,8 +414,9 @@ def aberration_this_week(
                 f"{C2_LAGS[1] + 2} needed (C2 for weeks t-2 to t)."
             )
         else:
-            missing = [f"t-{t - j}" if j < t else "t" for j in range(t - 2, t + 1)
-                       if np.isnan(c2[i, j])]
+            missing = [
+                f"t-{t - j}" if j < t else "t" for j in range(t - 2, t + 1) if np.isnan(c2[i, j])
+            ]
             r3.append(f"C3 not computed: C2 not available for week(s) {', '.join(missing)}.")
     return AberrationWeek(
         week_index=t,

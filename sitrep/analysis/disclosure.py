@@ -301,9 +301,7 @@ def protect_group(
             reason = _impossible_reason(cells, rules)
             break
         withheld[candidates.pop(0).district_id] = Rule.COMPLEMENTARY
-    already = tuple(
-        sorted(i for i in withheld if known.get(i) == (by_id[i].ili, by_id[i].visits))
-    )
+    already = tuple(sorted(i for i in withheld if known.get(i) == (by_id[i].ili, by_id[i].visits)))
     return GroupDecision(
         label=label,
         withheld=tuple(WithheldCell(i, r) for i, r in withheld.items()),

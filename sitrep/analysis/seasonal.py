@@ -294,9 +294,7 @@ def _as_season(values: npt.ArrayLike, label: str) -> FloatArray:
     if np.any(np.isinf(arr)):
         raise ValueError(f"season {label!r} contains an infinite value")
     if np.any(arr[~np.isnan(arr)] < 0):
-        raise ValueError(
-            f"season {label!r} contains a negative value, got min {np.nanmin(arr)!r}"
-        )
+        raise ValueError(f"season {label!r} contains a negative value, got min {np.nanmin(arr)!r}")
     return arr
 
 
@@ -564,8 +562,9 @@ def _baseline(
             )
 
     def unavailable(reason: str, used: tuple[str, ...] = ()) -> Baseline:
-        return Baseline(False, reason, None, None, None, None, 0, used, (), rule,
-                        sd_multiplier, ddof)
+        return Baseline(
+            False, reason, None, None, None, None, 0, used, (), rule, sd_multiplier, ddof
+        )
 
     if len(seasons) < n_seasons:
         return unavailable(
@@ -590,8 +589,20 @@ def _baseline(
     mean = float(arr.mean())
     sd = float(arr.std(ddof=ddof))
     value = mean + sd_multiplier * sd
-    return Baseline(True, "", value, round_half_up(value, 1), mean, sd, arr.size, used,
-                    tuple(weeks), rule, sd_multiplier, ddof)
+    return Baseline(
+        True,
+        "",
+        value,
+        round_half_up(value, 1),
+        mean,
+        sd,
+        arr.size,
+        used,
+        tuple(weeks),
+        rule,
+        sd_multiplier,
+        ddof,
+    )
 
 
 def baseline_from_nonepidemic(
@@ -670,8 +681,7 @@ def baseline_from_nonepidemic(
             period = by_label.get(label)
             if period is None:
                 raise ValueError(
-                    f"no epidemic period for season {label!r}; periods given for "
-                    f"{sorted(by_label)}"
+                    f"no epidemic period for season {label!r}; periods given for {sorted(by_label)}"
                 )
             if not 1 <= period.start_week <= period.end_week <= values.size:
                 raise ValueError(
@@ -1096,7 +1106,9 @@ def mem_thresholds(
         return result(
             f"Epidemic thresholds are not available: {len(pre)} pre-epidemic week value(s) in "
             f"the {k} seasons used, at least 2 are needed.",
-            periods=tuple(periods), n=n, pools=pools,
+            periods=tuple(periods),
+            n=n,
+            pools=pools,
         )
     positive = np.asarray([v for v in epi if v > 0])
     if len(positive) < len(epi):
@@ -1108,7 +1120,9 @@ def mem_thresholds(
         return result(
             f"Epidemic thresholds are not available: {positive.size} positive epidemic-period "
             f"value(s) in the {k} seasons used, at least 2 are needed.",
-            periods=tuple(periods), n=n, pools=pools,
+            periods=tuple(periods),
+            n=n,
+            pools=pools,
         )
     epidemic = _upper_limit(np.asarray(pre), threshold_level, form)
     post_threshold: float | None = None

@@ -79,9 +79,13 @@ def pooled_by_week(frame: pd.DataFrame) -> pd.DataFrame:
         grouped.insert(0, "week", [week.cat.categories[c] for c in sums.index])
         grouped = grouped.sort_values("week", kind="stable").reset_index(drop=True)
     else:
-        grouped = frame.groupby("week", sort=True)[["ili_visits", "total_visits"]].sum().reset_index()
+        grouped = (
+            frame.groupby("week", sort=True)[["ili_visits", "total_visits"]].sum().reset_index()
+        )
     total = grouped["total_visits"].astype(float)
-    grouped["pct"] = np.where(total > 0, 100.0 * grouped["ili_visits"] / total.where(total > 0, 1.0), np.nan)
+    grouped["pct"] = np.where(
+        total > 0, 100.0 * grouped["ili_visits"] / total.where(total > 0, 1.0), np.nan
+    )
     return grouped
 
 
@@ -128,31 +132,47 @@ def seasonal_context(
     curve = tuple((i, current_values[i]) for i in sorted(current_values) if i <= season_week)
     this_pct = current_values.get(season_week, math.nan)
 
-    mem = seasonal.mem_thresholds(
-        windowed,
-        delta=settings.mem_delta,
-        form=settings.mem_form,
-        max_seasons=settings.mem_max_seasons,
-    ) if past else None
+    mem = (
+        seasonal.mem_thresholds(
+            windowed,
+            delta=settings.mem_delta,
+            form=settings.mem_form,
+            max_seasons=settings.mem_max_seasons,
+        )
+        if past
+        else None
+    )
     band = None
-    if mem is not None and mem.available and mem.epidemic_threshold is not None and settings.mem_window_end_week:
+    if (
+        mem is not None
+        and mem.available
+        and mem.epidemic_threshold is not None
+        and settings.mem_window_end_week
+    ):
         whole = seasonal.mem_thresholds(
-            past, delta=settings.mem_delta, form=settings.mem_form, max_seasons=settings.mem_max_seasons
+            past,
+            delta=settings.mem_delta,
+            form=settings.mem_form,
+            max_seasons=settings.mem_max_seasons,
         )
         if whole.available and whole.epidemic_threshold is not None:
             pair = sorted((float(mem.epidemic_threshold), float(whole.epidemic_threshold)))
             if pair[1] - pair[0] > 1e-9:
                 band = (pair[0], pair[1])
     available = bool(mem and mem.available)
-    reason = mem.reason if mem is not None else (
-        "Epidemic thresholds are not available: the history holds no past season."
+    reason = (
+        mem.reason
+        if mem is not None
+        else ("Epidemic thresholds are not available: the history holds no past season.")
     )
 
     baseline_value: float | None = None
     baseline_note = ""
     baseline_seasons_used = baseline_weeks = 0
     if past:
-        periods = [seasonal.epidemic_period(v, delta=settings.mem_delta, label=k) for k, v in past.items()]
+        periods = [
+            seasonal.epidemic_period(v, delta=settings.mem_delta, label=k) for k, v in past.items()
+        ]
         base = seasonal.baseline_from_nonepidemic(
             past,
             periods,
@@ -173,7 +193,9 @@ def seasonal_context(
 
     onset = None
     if available and mem is not None and mem.epidemic_threshold is not None:
-        series = np.array([current_values.get(i, np.nan) for i in range(1, season_week + 1)], dtype=float)
+        series = np.array(
+            [current_values.get(i, np.nan) for i in range(1, season_week + 1)], dtype=float
+        )
         start = seasonal.season_onset(series, mem.epidemic_threshold, k=settings.onset_weeks)
         if start is not None:
             onset = week - (season_week - start)
@@ -239,7 +261,9 @@ def _window_length(calendar: dict[int, int], start: int, end: int, length: int) 
     return length
 
 
-def _district_flags(rows: pd.DataFrame, week: EpiWeek, settings: SeasonalSettings) -> dict[str, str]:
+def _district_flags(
+    rows: pd.DataFrame, week: EpiWeek, settings: SeasonalSettings
+) -> dict[str, str]:
     """'C1', 'C2', 'C3' alarms per district for ``week`` (empty string when none)."""
     recent_weeks = [week - k for k in range(11, -1, -1)]
     sub = rows[rows["week"].isin(recent_weeks)]
@@ -263,8 +287,14 @@ def _district_flags(rows: pd.DataFrame, week: EpiWeek, settings: SeasonalSetting
     return flags
 
 
-def _method_note(settings: SeasonalSettings, mem: seasonal.MemThresholds | None, baseline_note: str) -> str:
-    form = "mean + z·SD of the pooled values (point form)" if settings.mem_form == "point" else "upper limit of the confidence interval of the mean"
+def _method_note(
+    settings: SeasonalSettings, mem: seasonal.MemThresholds | None, baseline_note: str
+) -> str:
+    form = (
+        "mean + z·SD of the pooled values (point form)"
+        if settings.mem_form == "point"
+        else "upper limit of the confidence interval of the mean"
+    )
     text = (
         f"Moving Epidemic Method (Vega et al. 2013; intensity levels Vega et al. 2015) on the pooled weekly ILI% of up to "
         f"{settings.mem_max_seasons} past seasons: epidemic periods by the maximum accumulated rates percentage with slope "

@@ -163,13 +163,21 @@ def _withhold_totals(j: JurisdictionSummary, now: bool, before: bool) -> Jurisdi
         changes.update(ili_percent=nan, ci_low=nan, ci_high=nan, withheld=True)
     if before:
         changes.update(
-            prior_ili_percent=nan, prior_ci_low=nan, prior_ci_high=nan,
-            prior_ili_percent_published=nan, prior_withheld=True,
+            prior_ili_percent=nan,
+            prior_ci_low=nan,
+            prior_ci_high=nan,
+            prior_ili_percent_published=nan,
+            prior_withheld=True,
         )
     if now or before:
         changes.update(
-            change_pp=nan, change_low_pp=nan, change_high_pp=nan, change_relative=nan,
-            change_p=nan, change_from_zero=False, change_class=ChangeClass.NOT_ASSESSABLE,
+            change_pp=nan,
+            change_low_pp=nan,
+            change_high_pp=nan,
+            change_relative=nan,
+            change_p=nan,
+            change_from_zero=False,
+            change_class=ChangeClass.NOT_ASSESSABLE,
         )
     return dataclasses.replace(j, **changes) if changes else j  # type: ignore[arg-type]
 
@@ -631,6 +639,7 @@ def _disclosure_notes(decision: DisclosureDecision, rules: DisclosureRules) -> l
         if group.total_withheld:
             out.append(f"the jurisdiction total of {when} is withheld as well: {group.reason}")
     return out
+
 
 def _cluster_values(
     settings: AnalysisSettings, pct: FloatArray, eb_pct: FloatArray, usable: BoolArray

@@ -210,7 +210,9 @@ def build_graph(
                 f"the projected districts have {len(metric)} rows for {n} districts"
             )
         metric = metric.set_axis(list(ids), axis=0)
-    elif (kind == "knn" or link_islands_k > 0) and frame.crs is not None and frame.crs.is_geographic:
+    elif (
+        (kind == "knn" or link_islands_k > 0) and frame.crs is not None and frame.crs.is_geographic
+    ):
         metric, note = _projected(indexed)
         notes.append(note)
     else:

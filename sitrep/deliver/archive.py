@@ -280,7 +280,9 @@ def next_version(archive_root: Path, jurisdiction: str, week_label: str) -> int:
     return found[-1] + 1 if found else 1
 
 
-def archived_results(archive_root: Path, jurisdiction: str, week_label: str) -> tuple[tuple[Path, bytes], ...]:
+def archived_results(
+    archive_root: Path, jurisdiction: str, week_label: str
+) -> tuple[tuple[Path, bytes], ...]:
     """``results.json`` of every archived version of a week, oldest first (path, bytes).
 
     Disclosure control reads them so that a reissue keeps withheld what an
@@ -582,8 +584,15 @@ def write_bundle(
     try:
         with _chain_lock(week_dir.parent):
             return _write_bundle_locked(
-                archive_root, jurisdiction, week, week_dir, names, files, manifest,
-                reissue_reason, signer,
+                archive_root,
+                jurisdiction,
+                week,
+                week_dir,
+                names,
+                files,
+                manifest,
+                reissue_reason,
+                signer,
             )
     except BaseException:
         if fresh:  # leave no empty jurisdiction folder (nor its lock file) behind
@@ -722,15 +731,23 @@ def _chain_lock(jurisdiction_dir: Path) -> Iterator[None]:
     import fcntl
 
     try:
-        fd = os.open(jurisdiction_dir / _LOCK_FILE, os.O_RDWR | os.O_CREAT | getattr(os, "O_NOFOLLOW", 0), 0o644)
+        fd = os.open(
+            jurisdiction_dir / _LOCK_FILE,
+            os.O_RDWR | os.O_CREAT | getattr(os, "O_NOFOLLOW", 0),
+            0o644,
+        )
     except OSError as exc:
         raise DeliveryError(f"cannot lock archive folder {jurisdiction_dir}: {exc}") from exc
     try:
         try:
             fcntl.flock(fd, fcntl.LOCK_EX)
         except OSError as exc:
-            if exc.errno != errno.ENOLCK:  # a file system without locks: verify --chain shows a fork
-                raise DeliveryError(f"cannot lock archive folder {jurisdiction_dir}: {exc}") from exc
+            if (
+                exc.errno != errno.ENOLCK
+            ):  # a file system without locks: verify --chain shows a fork
+                raise DeliveryError(
+                    f"cannot lock archive folder {jurisdiction_dir}: {exc}"
+                ) from exc
         yield
     finally:
         os.close(fd)
@@ -1016,7 +1033,9 @@ def _check_bundle_signature(
         return _Signature("unsigned")
     fp = str(recorded.get("fingerprint", ""))
     if not present:
-        problems.append(f"{SIGNATURE_FILE} is missing ({MANIFEST_JSON} records a signature by {fp})")
+        problems.append(
+            f"{SIGNATURE_FILE} is missing ({MANIFEST_JSON} records a signature by {fp})"
+        )
         return _Signature("missing", fp)
     if sig_path.is_symlink() or not sig_path.is_file():
         problems.append(f"{SIGNATURE_FILE} is not a regular file")
@@ -1046,7 +1065,11 @@ def _check_place(path: Path, manifest: Mapping[str, Any]) -> list[str]:
         return []  # a copy outside an archive layout: nothing to compare with
     here = f"{path.parent.name}/{path.name}"
     there = f"{recorded.get('week')}/v{recorded.get('version')}"
-    return [] if here == there else [f"{MANIFEST_JSON} says this is bundle {there}, but it sits in {here}"]
+    return (
+        []
+        if here == there
+        else [f"{MANIFEST_JSON} says this is bundle {there}, but it sits in {here}"]
+    )
 
 
 # --------------------------------------------------------------------------- plain output folder

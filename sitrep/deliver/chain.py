@@ -82,7 +82,8 @@ def verify_chain(jurisdiction_dir: Path, trusted_keys: tuple[PublicKey, ...] = (
     checked: dict[str, VerifyResult] = {bid: verify_bundle(p, trusted_keys) for bid, p in folders}
     links = {bid: read_chain_link(bid, p) for bid, p in folders}
     chained = sorted(
-        (link for link in links.values() if link is not None), key=lambda k: (k.sequence, k.bundle_id)
+        (link for link in links.values() if link is not None),
+        key=lambda k: (k.sequence, k.bundle_id),
     )
 
     reports: list[LinkReport] = [
@@ -136,7 +137,9 @@ def verify_chain(jurisdiction_dir: Path, trusted_keys: tuple[PublicKey, ...] = (
     first_break = None
     if broken:
         first = min(broken, key=lambda r: (r.sequence is not None, r.sequence or 0, r.bundle_id))
-        first_break = f"{first.bundle_id}: {first.problems[0]}" if first.problems else first.bundle_id
+        first_break = (
+            f"{first.bundle_id}: {first.problems[0]}" if first.problems else first.bundle_id
+        )
     head = chained[-1] if chained else None
     return ChainReport(not broken, tuple(reports), first_break, head)
 

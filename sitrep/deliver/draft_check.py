@@ -54,13 +54,13 @@ from sitrep.errors import ConfigError, InputError
 
 __all__ = ["DraftFinding", "as_json", "check_draft", "read_edited_draft"]
 
-_MONTHS = (
-    "January|February|March|April|May|June|July|August|September|October|November|December"
-)
+_MONTHS = "January|February|March|April|May|June|July|August|September|October|November|December"
 _DATE = re.compile(rf"\b(\d{{1,2}})(?:\s*[–-]\s*(\d{{1,2}}))?\s+({_MONTHS})(?:\s+(\d{{4}}))?\b")
 _WEEK_WORD = re.compile(r"\bweek\s+(\d{1,2})\b", re.IGNORECASE)
 _WEEK_LABEL = re.compile(r"\b(\d{4})-W(\d{2})\b")
-_NUMBER = re.compile(r"(?<![\w.,])[-−]?\d{1,3}(?:,\d{3})+(?:\.\d+)?(?![\w])|(?<![\w.,])[-−]?\d+(?:\.\d+)?(?![\w])")
+_NUMBER = re.compile(
+    r"(?<![\w.,])[-−]?\d{1,3}(?:,\d{3})+(?:\.\d+)?(?![\w])|(?<![\w.,])[-−]?\d+(?:\.\d+)?(?![\w])"
+)
 _SENTENCE = re.compile(r"(?<=[.!?])\s+(?=[A-Z0-9])")
 _COMPARISON = re.compile(
     r"\b(above|below|higher|lower|more than|less than|exceed\w*|over|under|greater|smaller)\b",
@@ -68,9 +68,9 @@ _COMPARISON = re.compile(
 )
 _DIRECTIONS = {
     "up": r"rise|rises|rose|risen|rising|increase|increases|increased|increasing|grew|grown|"
-          r"growing|gone up|went up|going up|climb\w*|upward",
+    r"growing|gone up|went up|going up|climb\w*|upward",
     "down": r"fall|falls|fell|fallen|falling|decrease|decreases|decreased|decreasing|declin\w*|"
-            r"drop|drops|dropped|dropping|gone down|went down|going down|downward",
+    r"drop|drops|dropped|dropping|gone down|went down|going down|downward",
     "flat": r"no clear change|unchanged|stable|steady|flat|no change",
 }
 _DIRECTION_RE = {k: re.compile(rf"\b({v})\b", re.IGNORECASE) for k, v in _DIRECTIONS.items()}
@@ -212,7 +212,9 @@ def check_draft(bundle: Path, edited: Sequence[str]) -> list[DraftFinding]:
     original_dates = {_date_key(m) for p in original for m in _DATE.finditer(p)}
     original_weeks = {m.group(1).lstrip("0") for p in original for m in _WEEK_WORD.finditer(p)}
     original_labels = {m.group(0) for p in original for m in _WEEK_LABEL.finditer(p)}
-    original_numbers = [n for p in original for n in _numbers(_mask(p, (_DATE, _WEEK_LABEL, _WEEK_WORD)))]
+    original_numbers = [
+        n for p in original for n in _numbers(_mask(p, (_DATE, _WEEK_LABEL, _WEEK_WORD)))
+    ]
 
     findings: list[DraftFinding] = []
     for index, paragraph in enumerate(edited, start=1):
@@ -221,8 +223,12 @@ def check_draft(bundle: Path, edited: Sequence[str]) -> list[DraftFinding]:
             *_check_weeks(index, paragraph, original_dates, original_weeks, original_labels),
             *_check_districts(index, paragraph, districts, names, named_in_original),
             *_check_figures(
-                index, paragraph, match if similarity >= 0.35 else None, original_numbers,
-                districts, names,
+                index,
+                paragraph,
+                match if similarity >= 0.35 else None,
+                original_numbers,
+                districts,
+                names,
             ),
             *_check_direction(index, paragraph, match if similarity >= 0.45 else None),
         ]
@@ -300,17 +306,29 @@ def _check_weeks(
     said = ", ".join(sorted(f"week {w}" for w in weeks)) or "no week number"
     for m in _WEEK_WORD.finditer(paragraph):
         if m.group(1).lstrip("0") not in weeks:
-            out.append(DraftFinding("week-or-date", index, _excerpt(paragraph, m.start(), m.end()),
-                                    f"the report is about {said}"))
+            out.append(
+                DraftFinding(
+                    "week-or-date",
+                    index,
+                    _excerpt(paragraph, m.start(), m.end()),
+                    f"the report is about {said}",
+                )
+            )
     for m in _WEEK_LABEL.finditer(paragraph):
         if m.group(0) not in labels and m.group(2).lstrip("0") not in weeks:
-            out.append(DraftFinding("week-or-date", index, m.group(0), f"the report is about {said}"))
+            out.append(
+                DraftFinding("week-or-date", index, m.group(0), f"the report is about {said}")
+            )
     for m in _DATE.finditer(paragraph):
         if _date_key(m) not in dates:
-            out.append(DraftFinding(
-                "week-or-date", index, m.group(0),
-                "the report gives the dates " + "; ".join(sorted(dates)),
-            ))
+            out.append(
+                DraftFinding(
+                    "week-or-date",
+                    index,
+                    m.group(0),
+                    "the report gives the dates " + "; ".join(sorted(dates)),
+                )
+            )
     return out
 
 
@@ -324,11 +342,15 @@ def _check_districts(
     out: list[DraftFinding] = []
     for name, start, end in _name_spans(paragraph, names):
         if name not in named_in_original:
-            out.append(DraftFinding(
-                "district-not-named", index, _excerpt(paragraph, start, end),
-                f"the report's draft does not name {name}; its figures do not support a "
-                "statement about it here",
-            ))
+            out.append(
+                DraftFinding(
+                    "district-not-named",
+                    index,
+                    _excerpt(paragraph, start, end),
+                    f"the report's draft does not name {name}; its figures do not support a "
+                    "statement about it here",
+                )
+            )
     return out
 
 
@@ -340,9 +362,13 @@ def _district_figures(
     numbers = _numbers(masked)
     for name, start, end in _name_spans(paragraph, names):
         for n in numbers:
-            if end <= n.start <= end + _NAME_WINDOW and masked[n.end:n.end + 2].lstrip().startswith("%"):
-                between = masked[end:n.start]
-                if not re.search(r"[A-Za-z]{4,}", between):  # "Name (3.95%)", "Name: 3.95%", "Name, 3.95%"
+            if end <= n.start <= end + _NAME_WINDOW and masked[
+                n.end : n.end + 2
+            ].lstrip().startswith("%"):
+                between = masked[end : n.start]
+                if not re.search(
+                    r"[A-Za-z]{4,}", between
+                ):  # "Name (3.95%)", "Name: 3.95%", "Name, 3.95%"
                     pairs.append((name, n, start))
                 break
     return pairs
@@ -364,15 +390,23 @@ def _check_figures(
         d = districts[name]
         where = _excerpt(paragraph, start, printed.end)
         if d.withheld:
-            out.append(DraftFinding(
-                "withheld-figure", index, where,
-                f"{name}'s counts are withheld to protect small numbers; give no figure for it",
-            ))
+            out.append(
+                DraftFinding(
+                    "withheld-figure",
+                    index,
+                    where,
+                    f"{name}'s counts are withheld to protect small numbers; give no figure for it",
+                )
+            )
         elif d.ili_percent is not None and not _rounds_to(d.ili_percent, printed):
-            out.append(DraftFinding(
-                "district-figure", index, where,
-                f"{name}: the report gives {d.ili_percent:.2f}% (ILI percentage)",
-            ))
+            out.append(
+                DraftFinding(
+                    "district-figure",
+                    index,
+                    where,
+                    f"{name}: the report gives {d.ili_percent:.2f}% (ILI percentage)",
+                )
+            )
     out.extend(_check_order(index, paragraph, pairs, districts))
 
     local = _numbers(_mask(match, (_DATE, _WEEK_LABEL, _WEEK_WORD))) if match else []
@@ -384,22 +418,31 @@ def _check_figures(
             continue
         nearest = min(pool, key=lambda o: abs(o.value - printed.value), default=None)
         says = (
-            f"the matching sentence of the report gives {nearest.text}" if nearest and match
+            f"the matching sentence of the report gives {nearest.text}"
+            if nearest and match
             else "the report's draft has no such figure"
         )
-        out.append(DraftFinding("figure-changed", index, _excerpt(paragraph, printed.start, printed.end), says))
+        out.append(
+            DraftFinding(
+                "figure-changed", index, _excerpt(paragraph, printed.start, printed.end), says
+            )
+        )
     return out
 
 
 def _check_order(
-    index: int, paragraph: str, pairs: Sequence[tuple[str, _Printed, int]],
+    index: int,
+    paragraph: str,
+    pairs: Sequence[tuple[str, _Printed, int]],
     districts: dict[str, _District],
 ) -> list[DraftFinding]:
     out: list[DraftFinding] = []
     for sentence_start, sentence in _sentences(paragraph):
         inside = [
-            (n, p) for n, p, s in pairs
-            if sentence_start <= s < sentence_start + len(sentence) and districts[n].ili_percent is not None
+            (n, p)
+            for n, p, s in pairs
+            if sentence_start <= s < sentence_start + len(sentence)
+            and districts[n].ili_percent is not None
         ]
         for (a, pa), (b, pb) in itertools.pairwise(inside):
             va, vb = districts[a].ili_percent, districts[b].ili_percent
@@ -407,12 +450,16 @@ def _check_order(
             reversed_order = (pa.value - pb.value) * (va - vb) < 0
             hidden = pa.value == pb.value and va != vb and _COMPARISON.search(sentence)
             if reversed_order or hidden:
-                out.append(DraftFinding(
-                    "rounding-reverses", index, f"{a} ({pa.text}%) \u2026 {b} ({pb.text}%)",
-                    f"{a} is {va:.2f}% and {b} is {vb:.2f}%: printed this way the order "
-                    f"{'is reversed' if reversed_order else 'is hidden'}; print both with "
-                    f"{max(pa.decimals, pb.decimals, 2)} decimals",
-                ))
+                out.append(
+                    DraftFinding(
+                        "rounding-reverses",
+                        index,
+                        f"{a} ({pa.text}%) \u2026 {b} ({pb.text}%)",
+                        f"{a} is {va:.2f}% and {b} is {vb:.2f}%: printed this way the order "
+                        f"{'is reversed' if reversed_order else 'is hidden'}; print both with "
+                        f"{max(pa.decimals, pb.decimals, 2)} decimals",
+                    )
+                )
     return out
 
 
@@ -420,7 +467,7 @@ def _sentences(paragraph: str) -> list[tuple[int, str]]:
     out: list[tuple[int, str]] = []
     start = 0
     for m in _SENTENCE.finditer(paragraph):
-        out.append((start, paragraph[start:m.start()]))
+        out.append((start, paragraph[start : m.start()]))
         start = m.end()
     out.append((start, paragraph[start:]))
     return out
@@ -440,10 +487,14 @@ def _check_direction(index: int, paragraph: str, match: str | None) -> list[Draf
     for direction, m in _directions(paragraph).items():
         if direction not in said:
             first = next(iter(said.values()))
-            out.append(DraftFinding(
-                "trend-reversed", index, _excerpt(paragraph, m.start(), m.end()),
-                f"the report says \u201c{first.group(0)}\u201d here",
-            ))
+            out.append(
+                DraftFinding(
+                    "trend-reversed",
+                    index,
+                    _excerpt(paragraph, m.start(), m.end()),
+                    f"the report says \u201c{first.group(0)}\u201d here",
+                )
+            )
     return out
 
 
@@ -453,7 +504,7 @@ def _check_cautions(original: Sequence[str], edited: Sequence[str]) -> list[Draf
     except StopIteration:
         return []
     cautions: list[str] = []
-    for p in original[start + 1:]:
+    for p in original[start + 1 :]:
         if p.strip().lower() in ("contact",):
             break
         cautions.append(p)
@@ -461,10 +512,14 @@ def _check_cautions(original: Sequence[str], edited: Sequence[str]) -> list[Draf
     for caution in cautions:
         _, score = _best_match(caution, edited)
         if score < 0.6:
-            out.append(DraftFinding(
-                "caution-removed", len(edited), caution[:90] + ("\u2026" if len(caution) > 90 else ""),
-                "this caution of the report is missing from the edit; keep it (it may be re-worded)",
-            ))
+            out.append(
+                DraftFinding(
+                    "caution-removed",
+                    len(edited),
+                    caution[:90] + ("\u2026" if len(caution) > 90 else ""),
+                    "this caution of the report is missing from the edit; keep it (it may be re-worded)",
+                )
+            )
     return out
 
 

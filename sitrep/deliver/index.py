@@ -38,8 +38,16 @@ from sitrep.deliver.chain import verify_chain
 from sitrep.deliver.review import read_approvals
 from sitrep.errors import DeliveryError
 
-__all__ = ["COMPARE_FOLDER", "INDEX_FILE", "BundleEntry", "Comparison", "compare_versions",
-           "refresh_index", "scan_archive", "write_index"]
+__all__ = [
+    "COMPARE_FOLDER",
+    "INDEX_FILE",
+    "BundleEntry",
+    "Comparison",
+    "compare_versions",
+    "refresh_index",
+    "scan_archive",
+    "write_index",
+]
 
 INDEX_FILE = "index.html"
 COMPARE_FOLDER = "_compare"
@@ -175,30 +183,39 @@ def scan_archive(archive: Path) -> list[BundleEntry]:
             validation = _section(manifest, "validation")
             earlier = [v for v in versions[week] if v < version]
             rel = f"{folder.name}/{week}/v{version}"
-            entries.append(BundleEntry(
-                jurisdiction=str(_section(manifest, "bundle").get("jurisdiction") or folder.name),
-                slug=folder.name,
-                week=week,
-                version=version,
-                build_time=_build_time(manifest),
-                reissue_reason=str(reissue.get("reason", "")),
-                checksums="ok" if checked.ok else f"FAILED ({len(checked.problems)} problem(s))",
-                signature=checked.signature.replace("-", " "),
-                chain=(
-                    "not checked" if link is None
-                    else f"link {link.sequence}: {link.status}" if link.sequence is not None
-                    else link.status.replace("-", " ")
-                ),
-                delivery=_delivery(path),
-                review=_review(path),
-                warnings=str(validation.get("warnings", "")),
-                html_link=f"{rel}/report.html" if (path / "report.html").is_file() else "",
-                pdf_link=f"{rel}/report.pdf" if (path / "report.pdf").is_file() else "",
-                compare_link=(
-                    f"{COMPARE_FOLDER}/{_compare_name(folder.name, week, earlier[-1], version)}"
-                    if earlier else ""
-                ),
-            ))
+            entries.append(
+                BundleEntry(
+                    jurisdiction=str(
+                        _section(manifest, "bundle").get("jurisdiction") or folder.name
+                    ),
+                    slug=folder.name,
+                    week=week,
+                    version=version,
+                    build_time=_build_time(manifest),
+                    reissue_reason=str(reissue.get("reason", "")),
+                    checksums="ok"
+                    if checked.ok
+                    else f"FAILED ({len(checked.problems)} problem(s))",
+                    signature=checked.signature.replace("-", " "),
+                    chain=(
+                        "not checked"
+                        if link is None
+                        else f"link {link.sequence}: {link.status}"
+                        if link.sequence is not None
+                        else link.status.replace("-", " ")
+                    ),
+                    delivery=_delivery(path),
+                    review=_review(path),
+                    warnings=str(validation.get("warnings", "")),
+                    html_link=f"{rel}/report.html" if (path / "report.html").is_file() else "",
+                    pdf_link=f"{rel}/report.pdf" if (path / "report.pdf").is_file() else "",
+                    compare_link=(
+                        f"{COMPARE_FOLDER}/{_compare_name(folder.name, week, earlier[-1], version)}"
+                        if earlier
+                        else ""
+                    ),
+                )
+            )
     entries.sort(key=lambda e: (e.jurisdiction, e.week, e.version), reverse=True)
     return entries
 
@@ -293,10 +310,16 @@ def _figures(old: Any, new: Any) -> list[tuple[str, str, str, str]]:
     for key in sorted(set(oj) | set(nj)):
         if key in ("districts",) or _shown(oj.get(key)) == _shown(nj.get(key)):
             continue
-        rows.append(("jurisdiction", key.replace("_", " "), _shown(oj.get(key)), _shown(nj.get(key))))
+        rows.append(
+            ("jurisdiction", key.replace("_", " "), _shown(oj.get(key)), _shown(nj.get(key)))
+        )
 
     def by_id(results: Mapping[str, Any]) -> dict[str, Mapping[str, Any]]:
-        return {str(r.get("district_id")): r for r in results.get("districts") or [] if isinstance(r, dict)}
+        return {
+            str(r.get("district_id")): r
+            for r in results.get("districts") or []
+            if isinstance(r, dict)
+        }
 
     od, nd = by_id(old), by_id(new)
     for did in sorted(set(od) | set(nd), key=lambda s: (len(s), s)):
@@ -336,7 +359,9 @@ def compare_versions(old_bundle: Path, new_bundle: Path) -> Comparison:
         old=int(om.get("bundle", {}).get("version", 0)),
         new=int(bundle.get("version", 0)),
         reason=str((nm.get("reissue") or {}).get("reason", "")),
-        figures=tuple(_figures(_load(old_bundle / "results.json"), _load(new_bundle / "results.json"))),
+        figures=tuple(
+            _figures(_load(old_bundle / "results.json"), _load(new_bundle / "results.json"))
+        ),
         sentences=tuple(sentences),
         files=tuple(files),
     )
@@ -376,14 +401,22 @@ def write_index(
             comparison = compare_versions(week_dir / f"v{old}", week_dir / f"v{e.version}")
             target = archive / e.compare_link
             target.parent.mkdir(parents=True, exist_ok=True)
-            replace_file(target, _render("archive_compare.html.j2", comparison=comparison, generated=when))
+            replace_file(
+                target, _render("archive_compare.html.j2", comparison=comparison, generated=when)
+            )
             written.append(target)
         jurisdictions = sorted({e.jurisdiction for e in entries})
         target = archive / INDEX_FILE
-        replace_file(target, _render(
-            "archive_index.html.j2", entries=entries, jurisdictions=jurisdictions, generated=when,
-            problems=sum(1 for e in entries if e.checksums != "ok" or "broken" in e.chain),
-        ))
+        replace_file(
+            target,
+            _render(
+                "archive_index.html.j2",
+                entries=entries,
+                jurisdictions=jurisdictions,
+                generated=when,
+                problems=sum(1 for e in entries if e.checksums != "ok" or "broken" in e.chain),
+            ),
+        )
         written.append(target)
     except OSError as exc:
         raise DeliveryError(f"cannot write the archive index in {archive}: {exc}") from exc
@@ -402,4 +435,3 @@ def refresh_index(archive: Path, log: Callable[[str], None]) -> Path | None:
         log(f"note: the archive index was not updated ({exc}); run `sitrep index {archive}`")
         return None
     return written[-1]
-

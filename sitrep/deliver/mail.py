@@ -96,6 +96,7 @@ class SendOutcome:
 
 # --------------------------------------------------------------------------- message
 
+
 def _no_newlines(field: str, value: str) -> str:
     if not isinstance(value, str):
         raise DeliveryError(f"e-mail {field} must be text, got {type(value).__name__}")
@@ -141,7 +142,10 @@ def refuse_internal(name: str) -> str:
         For such a name.
     """
     parts = str(name).replace("\\", "/").split("/")
-    if any(p.lower().startswith(INTERNAL_PREFIX) for p in parts) or "UNSUPPRESSED" in str(name).upper():
+    if (
+        any(p.lower().startswith(INTERNAL_PREFIX) for p in parts)
+        or "UNSUPPRESSED" in str(name).upper()
+    ):
         raise DeliveryError(
             f"refusing to attach {name!r}: files starting with {INTERNAL_PREFIX!r} or naming "
             "UNSUPPRESSED are for internal use only and are never e-mailed"

@@ -542,11 +542,17 @@ class PdfWorker:
             As :func:`html_to_pdf` for bad arguments; DeliveryError if the
             worker was used or closed already.
         """
-        self.submit(_request(html, base_url, asset_dir, pdf_variant, attachments, on_refused), timeout_s)
+        self.submit(
+            _request(html, base_url, asset_dir, pdf_variant, attachments, on_refused), timeout_s
+        )
 
     def submit(self, args: tuple[Any, ...], timeout_s: float) -> None:
         """Send checked arguments of ``_render`` (see :meth:`start`)."""
-        if isinstance(timeout_s, bool) or not isinstance(timeout_s, (int, float)) or not timeout_s > 0:
+        if (
+            isinstance(timeout_s, bool)
+            or not isinstance(timeout_s, (int, float))
+            or not timeout_s > 0
+        ):
             raise DeliveryError(f"timeout_s must be positive or None, got {timeout_s!r}")
         if self._server is None or self._deadline is not None:
             raise DeliveryError("this PDF worker was used or closed already; make a new one")
@@ -643,7 +649,9 @@ def _fork_server() -> int:
         _, status = os.waitpid(pid, 0)
         if not answer:
             why = f"exit code {os.waitstatus_to_exitcode(status)}"
-            answer = pickle.dumps(("error", f"the PDF render process ended without a result ({why})"))
+            answer = pickle.dumps(
+                ("error", f"the PDF render process ended without a result ({why})")
+            )
         out.write(_FRAME.pack(len(answer)) + answer)
         out.flush()
 

@@ -80,7 +80,9 @@ class HoldReason:
         where = ", ".join(
             f"{i} {n}".strip() for i, n in zip(self.district_ids, self.district_names, strict=True)
         )
-        return f"{self.rule} ({self.severity})" + (f" for {where}" if where else " (jurisdiction totals)")
+        return f"{self.rule} ({self.severity})" + (
+            f" for {where}" if where else " (jurisdiction totals)"
+        )
 
     def as_dict(self) -> dict[str, Any]:
         """JSON-ready form (kept in each approval line)."""
@@ -215,7 +217,9 @@ def hold_reasons(bundle: Path) -> tuple[HoldReason, ...]:
             tuple(members[i] for i in sorted(members)),
             messages[(severity, rule)],
         )
-        for (severity, rule), members in sorted(grouped.items(), key=lambda kv: (order.get(kv[0][0], 2), kv[0][1]))
+        for (severity, rule), members in sorted(
+            grouped.items(), key=lambda kv: (order.get(kv[0][0], 2), kv[0][1])
+        )
     )
 
 
@@ -407,7 +411,9 @@ def approve_bundle(
             os.fsync(fd)
         except OSError as exc:
             raise DeliveryError(f"writing the review record {path} failed: {exc}") from exc
-    approval = Approval(by, str(entry["time"]), note, manifest_sha, hashlib.sha256(line).hexdigest())
+    approval = Approval(
+        by, str(entry["time"]), note, manifest_sha, hashlib.sha256(line).hexdigest()
+    )
     return approval, reasons
 
 

@@ -212,7 +212,9 @@ def load_signer(path: Path) -> Signer:
         info = path.stat()
         data = path.read_bytes()
     except FileNotFoundError:
-        raise ConfigError(f"{where} not found; create one with `sitrep keys init --out DIR`") from None
+        raise ConfigError(
+            f"{where} not found; create one with `sitrep keys init --out DIR`"
+        ) from None
     except OSError as exc:
         raise ConfigError(f"cannot read {where}: {exc.strerror}") from None
     if info.st_mode & (stat.S_IRWXG | stat.S_IRWXO):
@@ -344,7 +346,8 @@ def check_signature(
     if signed.get("file") != _SIGNED_FILE or signed.get("sha256") != digest:
         return invalid(
             f"it signs a {_SIGNED_FILE} with SHA-256 {signed.get('sha256')}, the bundle's is {digest}",
-            fp, when,
+            fp,
+            when,
         )
     if signed.get("bundle") != bundle_id:
         return invalid(
@@ -355,6 +358,8 @@ def check_signature(
     if any(k.raw == raw for k in trusted):
         return SignatureCheck("valid", fp, when)
     return SignatureCheck(
-        "untrusted-key", fp, when,
+        "untrusted-key",
+        fp,
+        when,
         (f"{SIGNATURE_FILE}: signed with key {fp}, which is not among the trusted keys",),
     )

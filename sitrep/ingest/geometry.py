@@ -267,7 +267,9 @@ def local_crs(frame: Any) -> tuple[Any, str]:
     import shapely
     from pyproj import CRS
 
-    geoms = np.asarray(frame.geometry.to_numpy() if hasattr(frame, "geometry") else frame, dtype=object)
+    geoms = np.asarray(
+        frame.geometry.to_numpy() if hasattr(frame, "geometry") else frame, dtype=object
+    )
     xy = shapely.get_coordinates(geoms)
     lons = np.unique(((xy[:, 0] + 180.0) % 360.0) - 180.0)
     if lons.size == 0:
@@ -281,7 +283,9 @@ def local_crs(frame: Any) -> tuple[Any, str]:
         span = 360.0 - float(gaps[k])
     lon = ((west + span / 2.0 + 180.0) % 360.0) - 180.0
     lat = (float(xy[:, 1].min()) + float(xy[:, 1].max())) / 2.0
-    where = f"{abs(lon):.2f}° {'E' if lon >= 0 else 'W'}, {abs(lat):.2f}° {'N' if lat >= 0 else 'S'}"
+    where = (
+        f"{abs(lon):.2f}° {'E' if lon >= 0 else 'W'}, {abs(lat):.2f}° {'N' if lat >= 0 else 'S'}"
+    )
     if span <= UTM_MAX_SPAN_DEGREES and -80.0 <= lat <= 84.0:
         zone = int((lon + 180.0) // 6.0) % 60 + 1
         code = (32600 if lat >= 0 else 32700) + zone
@@ -301,9 +305,7 @@ def local_crs(frame: Any) -> tuple[Any, str]:
     )
 
 
-def _project(
-    frame: Any, settings: InputSettings, out: FindingCollector
-) -> tuple[Any, str] | None:
+def _project(frame: Any, settings: InputSettings, out: FindingCollector) -> tuple[Any, str] | None:
     """The districts in the CRS of maps and distances and the sentence saying which (None: error)."""
     from pyproj import CRS
     from pyproj.exceptions import CRSError

@@ -30,7 +30,16 @@ from sitrep.errors import InputError
 from sitrep.model import CountTable, Finding, InputFile, Severity, ValidationReport
 from sitrep.weeks import EpiWeek, WeekSystem
 
-__all__ = ["NUMERIC_ID_LINES_ATTR", "RULES", "SOURCE_COLUMNS_ATTR", "line_list", "pad_id", "FindingCollector", "read_count_table", "sort_findings"]
+__all__ = [
+    "NUMERIC_ID_LINES_ATTR",
+    "RULES",
+    "SOURCE_COLUMNS_ATTR",
+    "line_list",
+    "pad_id",
+    "FindingCollector",
+    "read_count_table",
+    "sort_findings",
+]
 
 RULES: tuple[tuple[str, str], ...] = (
     ("file-too-large", "the file is larger than input.max_input_mb (checked before parsing)"),
@@ -40,7 +49,10 @@ RULES: tuple[tuple[str, str], ...] = (
     ("file-encoding", "the bytes are not valid in the declared input.encoding"),
     ("file-unparseable", "the file cannot be parsed as the declared format"),
     ("sheet-missing", "the XLSX workbook has no worksheet named input.sheet"),
-    ("sheet-elsewhere", "the first worksheet lacks the columns another worksheet has (input.sheet)"),
+    (
+        "sheet-elsewhere",
+        "the first worksheet lacks the columns another worksheet has (input.sheet)",
+    ),
     ("row-field-count", "a CSV row has a different number of fields from the header"),
     ("row-blank", "a blank row inside the table was skipped (info)"),
     ("column-duplicated", "two header cells carry the same column name"),
@@ -276,9 +288,7 @@ def read_count_table(
 # --------------------------------------------------------------------------- readers
 
 
-def _decode(
-    data: bytes, encoding: str, out: FindingCollector, delimiter: str = ","
-) -> str | None:
+def _decode(data: bytes, encoding: str, out: FindingCollector, delimiter: str = ",") -> str | None:
     codec = "utf-8-sig" if encoding.lower().replace("_", "-") in ("utf-8", "utf8") else encoding
     try:
         return data.decode(codec)
@@ -316,8 +326,9 @@ def _column_at(data: bytes, line_start: int, position: int, delimiter: str) -> s
     if header_bytes.startswith(b"\xef\xbb\xbf"):
         header_bytes = header_bytes[3:]
     try:
-        header = next(csv.reader([header_bytes.decode("utf-8", "replace").rstrip("\r")],
-                                 delimiter=delimiter))
+        header = next(
+            csv.reader([header_bytes.decode("utf-8", "replace").rstrip("\r")], delimiter=delimiter)
+        )
         before = data[line_start:position].decode("utf-8", "replace")
         fields = next(csv.reader([before + "x"], delimiter=delimiter))
     except (csv.Error, StopIteration):
@@ -497,10 +508,16 @@ def _read_xlsx(data: bytes, settings: InputSettings, out: FindingCollector) -> _
         sheet = book[settings.sheet] if settings.sheet is not None else book.worksheets[0]
         if settings.sheet is None and len(book.worksheets) > 1:
             cmap = settings.columns
-            wanted = [_nfc(c).strip() for c in (cmap.district_id, cmap.ili_visits, cmap.total_visits)]
+            wanted = [
+                _nfc(c).strip() for c in (cmap.district_id, cmap.ili_visits, cmap.total_visits)
+            ]
             if not set(wanted) <= set(_sheet_header(sheet)):
                 other = next(
-                    (ws.title for ws in book.worksheets[1:] if set(wanted) <= set(_sheet_header(ws))),
+                    (
+                        ws.title
+                        for ws in book.worksheets[1:]
+                        if set(wanted) <= set(_sheet_header(ws))
+                    ),
                     None,
                 )
                 if other is not None:
@@ -1013,7 +1030,11 @@ def _ids_as_read(
                 )
     if settings.strip_id_whitespace:
         changed_u = np.array(
-            [_nfc(str(u)) != str(p) and str(p) != "" for u, p in zip(col.uniques, id_u, strict=True)], dtype=bool
+            [
+                _nfc(str(u)) != str(p) and str(p) != ""
+                for u, p in zip(col.uniques, id_u, strict=True)
+            ],
+            dtype=bool,
         )
         rows = np.flatnonzero(changed_u[id_codes]) if len(changed_u) else np.zeros(0, np.int64)
         if len(rows):

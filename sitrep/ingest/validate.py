@@ -54,7 +54,10 @@ RULES: tuple[tuple[str, str], ...] = (
         "the latest ILI% is far from the district's previous weeks after the jurisdiction's "
         "movement, and unlike the other districts' changes (warning)",
     ),
-    ("district-no-visits", "a district has 0 visits in the latest week, e.g. a closed site (warning)"),
+    (
+        "district-no-visits",
+        "a district has 0 visits in the latest week, e.g. a closed site (warning)",
+    ),
     (
         "week-system-differs",
         "this week's and last week's tables use different week systems (error)",
@@ -738,7 +741,9 @@ def _spikes(
     cross_z = np.full(len(x), np.inf)
     if usable.sum() >= _SPIKE_MIN_DISTRICTS:
         centre = float(np.median(dev[usable]))
-        scale = max(1.4826 * float(np.median(np.abs(dev[usable] - centre))), _SPIKE_LOG_SPREAD_FLOOR)
+        scale = max(
+            1.4826 * float(np.median(np.abs(dev[usable] - centre))), _SPIKE_LOG_SPREAD_FLOOR
+        )
         cross_z = np.abs(dev - centre) / scale
     flagged = usable & (own_z > z_limit) & (cross_z > z_limit)
     for d in np.flatnonzero(flagged).tolist():
@@ -746,7 +751,9 @@ def _spikes(
         if long[d]:
             basis = f"its previous 8 weeks (median {med[d]:.2f}%, MAD {mad[d]:.2f} pp)"
         else:
-            basis = f"its previous week ({one_week[d]:.2f}% in {a.weeks[-1] - (8 - int(last_seen[d]))})"
+            basis = (
+                f"its previous week ({one_week[d]:.2f}% in {a.weeks[-1] - (8 - int(last_seen[d]))})"
+            )
         others = (
             f"; {cross_z[d]:.1f} against the other districts' changes"
             if np.isfinite(cross_z[d])
@@ -921,7 +928,9 @@ def _lookup(keys_from: np.ndarray, keys_to: np.ndarray) -> np.ndarray:
     return np.asarray(np.where(pos >= 0, rows.to_numpy()[np.maximum(pos, 0)], -1))
 
 
-def _revisions(cur: _Arrays, pri: _Arrays, settings: ValidationSettings, out: FindingCollector) -> None:
+def _revisions(
+    cur: _Arrays, pri: _Arrays, settings: ValidationSettings, out: FindingCollector
+) -> None:
     vocab: dict[str, int] = {}
     kc, kp = _keys(cur, vocab), _keys(pri, vocab)
     cur_latest_ord = int(cur.ordinal.max())
@@ -1011,7 +1020,9 @@ def _revisions(cur: _Arrays, pri: _Arrays, settings: ValidationSettings, out: Fi
         )
 
 
-def _completeness(cur: _Arrays, pri: _Arrays, settings: ValidationSettings, out: FindingCollector) -> None:
+def _completeness(
+    cur: _Arrays, pri: _Arrays, settings: ValidationSettings, out: FindingCollector
+) -> None:
     last = int(cur.ordinal.max())
     ref = int(pri.ordinal.max())
     if ref >= last:

@@ -161,7 +161,6 @@ class ReportContext:
         return tuple(f for f in self.figures if f.key != "trend")
 
 
-
 def _month_range(start: Any, end: Any) -> str:
     return fm.fmt_week_dates(start, end)
 
@@ -290,10 +289,21 @@ def build_context(
     named_ids: set[str] = set(high_ids)
     high_groups: list[list[str]] = []
     for group in transitions.groups_now:
-        match = next((c for c in transitions.changes if tuple(c.ids_now) == tuple(group.ids) and c.label is group.label), None)
+        match = next(
+            (
+                c
+                for c in transitions.changes
+                if tuple(c.ids_now) == tuple(group.ids) and c.label is group.label
+            ),
+            None,
+        )
         movement = ""
         if match is not None and transitions.compared:
-            changed = list(match.added) + list(match.removed) if match.kind != "appeared" else list(match.ids_now)
+            changed = (
+                list(match.added) + list(match.removed)
+                if match.kind != "appeared"
+                else list(match.ids_now)
+            )
             movement = nv.movement_phrase(
                 kind=match.kind,
                 n_before=len(match.ids_before),
@@ -308,7 +318,9 @@ def build_context(
         if group.label.value == "high-high":
             high_groups.append([names[i] for i in group.ids])
     correction = nv.correction_phrase(correction=a.correction, fdr_q=a.fdr_q, alpha=a.alpha)
-    vanished = [c for c in transitions.changes if c.kind == "vanished"] if transitions.compared else []
+    vanished = (
+        [c for c in transitions.changes if c.kind == "vanished"] if transitions.compared else []
+    )
     variable = mt.variable_words(a.cluster_variable)
     cluster = nv.cluster_sentence(
         assessable=assessable,
@@ -319,23 +331,41 @@ def build_context(
     )
     if vanished and assessable:
         cluster += " " + " ".join(
-            nv.vanished_sentence(c.label.value, [names[i] for i in c.ids_before], borderline=borderline(list(c.ids_before)))
+            nv.vanished_sentence(
+                c.label.value,
+                [names[i] for i in c.ids_before],
+                borderline=borderline(list(c.ids_before)),
+            )
             for c in vanished
         )
         for c in vanished:
             named_ids.update(c.ids_before)
     highlights = _quality_highlights(validation)
     dq = nv.data_quality_sentence(n_warnings=len(validation.warnings), highlights=highlights)
-    dq_section = nv.data_quality_sentence(n_warnings=len(validation.warnings), highlights=highlights, in_section=True)
+    dq_section = nv.data_quality_sentence(
+        n_warnings=len(validation.warnings), highlights=highlights, in_section=True
+    )
     key_messages = (level + " " + change, thresholds, tercile, cluster, dq)
 
     unsettled = bool(
-        seasonal.threshold_band and seasonal.threshold_band[0] <= j.ili_percent <= seasonal.threshold_band[1]
+        seasonal.threshold_band
+        and seasonal.threshold_band[0] <= j.ili_percent <= seasonal.threshold_band[1]
     )
     draft_messages = (
-        pl.plain_level(week_number=week.week, dates=dates, jurisdiction=config.report.jurisdiction, pct=j.ili_percent)
-        + " " + pl.plain_change(verdict=verdict, pct_before=j.prior_ili_percent, rising_for=rising_for),
-        pl.plain_season(pct=j.ili_percent, threshold=seasonal.epidemic_threshold, digits=digits, unsettled=unsettled),
+        pl.plain_level(
+            week_number=week.week,
+            dates=dates,
+            jurisdiction=config.report.jurisdiction,
+            pct=j.ili_percent,
+        )
+        + " "
+        + pl.plain_change(verdict=verdict, pct_before=j.prior_ili_percent, rising_for=rising_for),
+        pl.plain_season(
+            pct=j.ili_percent,
+            threshold=seasonal.epidemic_threshold,
+            digits=digits,
+            unsettled=unsettled,
+        ),
         pl.plain_highest(ranked=[(names[i], pct_of[i]) for i in high_ids], digits=digits),
         pl.plain_groups(high_groups=high_groups, name_groups=config.report.draft_names_groups),
         pl.plain_quality(
@@ -366,7 +396,8 @@ def build_context(
     )
     table_file = next((f for f in inputs if f.role == "table"), None)
     data_as_of = nv.data_as_of(
-        latest_day=f"{week.end.day} {week.end:%B %Y}", file_name=table_file.path.name if table_file else ""
+        latest_day=f"{week.end.day} {week.end:%B %Y}",
+        file_name=table_file.path.name if table_file else "",
     )
     g = analysis.global_moran
     mem = seasonal.mem
@@ -417,7 +448,9 @@ def build_context(
         season_label=seasonal.season_label,
         season_start_week=config.weeks.season_start_week,
     )
-    methods = mt.methods_sections(settings) + ((("Maps and distances", projection),) if projection else ())
+    methods = mt.methods_sections(settings) + (
+        (("Maps and distances", projection),) if projection else ()
+    )
     previous = [v for v in seasonal.previous_visits if v > 0]
     usual = float(sorted(previous)[len(previous) // 2]) if len(previous) >= 3 else None
     cautions = mt.cautions(
@@ -429,7 +462,9 @@ def build_context(
             n_total=j.n_districts_total,
         ),
         completeness=mt.completeness_sentence(
-            visits_now=None if j.withheld else int(j.total_visits), visits_usual=usual, weeks=len(previous)
+            visits_now=None if j.withheld else int(j.total_visits),
+            visits_usual=usual,
+            weeks=len(previous),
         ),
     )
     decision = analysis.disclosure
@@ -437,19 +472,26 @@ def build_context(
         n_now=len(decision.this_week.withheld),
         n_before=len(decision.prior_week.withheld),
         total_now_reason=decision.this_week.reason if decision.this_week.total_withheld else "",
-        total_before_reason=decision.prior_week.reason if decision.prior_week.total_withheld else "",
+        total_before_reason=decision.prior_week.reason
+        if decision.prior_week.total_withheld
+        else "",
     )
     plain = (
         ("This week", draft_messages[0]),
         ("Compared with the season", draft_messages[1]),
         ("Where levels are highest", draft_messages[2] + " " + draft_messages[3]),
-        ("About the figures", draft_messages[4] + (" " + disclosure_note if disclosure_note else "")),
+        (
+            "About the figures",
+            draft_messages[4] + (" " + disclosure_note if disclosure_note else ""),
+        ),
     )
     report_version = str(version) if version is not None else config.report.version
     n_high = sum(1 for lab in table["cluster_label"] if lab == "high-high")
     n_low = sum(1 for lab in table["cluster_label"] if lab == "low-low")
     tiles = [
-        tl.level_tile(pct=j.ili_percent, low=j.ci_low, high=j.ci_high, confidence=conf, digits=digits),
+        tl.level_tile(
+            pct=j.ili_percent, low=j.ci_low, high=j.ci_high, confidence=conf, digits=digits
+        ),
         tl.change_tile(
             prior_week=prior.week if prior is not None else week.week - 1,
             diff_pp=j.change_pp,
@@ -463,7 +505,9 @@ def build_context(
             unsettled=unsettled,
         ),
     ]
-    shown_pct = [r.sort_pct for r in district_rows if not r.suppressed and not math.isnan(r.sort_pct)]
+    shown_pct = [
+        r.sort_pct for r in district_rows if not r.suppressed and not math.isnan(r.sort_pct)
+    ]
     if seasonal.thresholds_available and seasonal.epidemic_threshold is not None:
         tiles.append(
             tl.over_threshold_tile(
@@ -528,13 +572,17 @@ def build_context(
         ),
         analysis_notes=tuple(dict.fromkeys(analysis.notes)),
         reissue_note=(
-            nv.reissue_note(version=reissue[0], week_number=week.week, reason=reissue[1]) if reissue else ""
+            nv.reissue_note(version=reissue[0], week_number=week.week, reason=reissue[1])
+            if reissue
+            else ""
         ),
         draft_key_messages=draft_messages,
         ci_heading=f"{fm.confidence_label(conf)} CI",
         build_time=build_time,
         tiles=tuple(Tile(*t) for t in tiles),
-        district_table=district_table(district_rows, confidence_label=conf_label, min_visits=a.min_visits),
+        district_table=district_table(
+            district_rows, confidence_label=conf_label, min_visits=a.min_visits
+        ),
         district_table_pdf=district_table(
             top, confidence_label=conf_label, order="given", min_visits=a.min_visits
         ),
@@ -547,7 +595,9 @@ def context_digits(analysis: WeekAnalysis, seasonal: SeasonalContext) -> int:
     """Decimals for district ILI% and cut points this week (see :func:`~sitrep.render.wording.formats.class_digits`)."""
     table = analysis.table
     values = [
-        _f(v) for v, sup in zip(table["ili_percent"], table["suppressed"], strict=True) if not bool(sup)
+        _f(v)
+        for v, sup in zip(table["ili_percent"], table["suppressed"], strict=True)
+        if not bool(sup)
     ]
     cuts = tuple(analysis.terciles.cuts) if analysis.terciles.cuts else ()
     others = [x for x in (seasonal.epidemic_threshold, seasonal.baseline) if x is not None]
@@ -575,23 +625,49 @@ def _indicators(
     j = analysis.jurisdiction
     conf = fm.confidence_label(config.analysis.confidence)
     prior_label = f"week {analysis.prior_week.week}" if analysis.prior_week else "last week"
-    revised_note = nv.revision_note(published=j.prior_ili_percent_published, revised=j.prior_ili_percent)
+    revised_note = nv.revision_note(
+        published=j.prior_ili_percent_published, revised=j.prior_ili_percent
+    )
     rows = [
-        IndicatorRow("ILI% this week", fm.fmt_pct(j.ili_percent), WITHHELD_TOTAL if j.withheld else f"{conf} CI {fm.fmt_interval(j.ci_low, j.ci_high)}; {fm.fmt_count(j.ili_visits)} of {fm.fmt_count(j.total_visits)} visits"),
-        IndicatorRow(f"ILI% {prior_label} (revised)", fm.fmt_pct(j.prior_ili_percent), revised_note),
-        IndicatorRow("Change", fm.fmt_pp(j.change_pp), f"{conf} CI {fm.fmt_interval(j.change_low_pp, j.change_high_pp, ' pp')}; {verdict}"),
-        IndicatorRow("Districts reporting", f"{j.n_districts_reporting} of {j.n_districts_total}", nv.reporting_note(j.reporting_sites if math.isfinite(_f(j.reporting_sites)) else None)),
+        IndicatorRow(
+            "ILI% this week",
+            fm.fmt_pct(j.ili_percent),
+            WITHHELD_TOTAL
+            if j.withheld
+            else f"{conf} CI {fm.fmt_interval(j.ci_low, j.ci_high)}; {fm.fmt_count(j.ili_visits)} of {fm.fmt_count(j.total_visits)} visits",
+        ),
+        IndicatorRow(
+            f"ILI% {prior_label} (revised)", fm.fmt_pct(j.prior_ili_percent), revised_note
+        ),
+        IndicatorRow(
+            "Change",
+            fm.fmt_pp(j.change_pp),
+            f"{conf} CI {fm.fmt_interval(j.change_low_pp, j.change_high_pp, ' pp')}; {verdict}",
+        ),
+        IndicatorRow(
+            "Districts reporting",
+            f"{j.n_districts_reporting} of {j.n_districts_total}",
+            nv.reporting_note(j.reporting_sites if math.isfinite(_f(j.reporting_sites)) else None),
+        ),
     ]
     if seasonal.same_week_past:
         label, value = seasonal.same_week_past[-1]
-        rows.append(IndicatorRow(f"Same week, season {label}", fm.fmt_pct(value), f"season week {seasonal.season_week}"))
+        rows.append(
+            IndicatorRow(
+                f"Same week, season {label}",
+                fm.fmt_pct(value),
+                f"season week {seasonal.season_week}",
+            )
+        )
     baseline_note = (
         f"mean + {config.seasonal.baseline_sd:g} SD of ILI% outside the epidemic periods of the last "
         f"{seasonal.baseline_seasons_used} seasons ({seasonal.baseline_weeks} weeks)"
         if seasonal.baseline_seasons_used
         else seasonal.baseline_note
     )
-    rows.append(IndicatorRow("Seasonal baseline", fm.fmt_pct(seasonal.baseline, digits), baseline_note))
+    rows.append(
+        IndicatorRow("Seasonal baseline", fm.fmt_pct(seasonal.baseline, digits), baseline_note)
+    )
     if seasonal.thresholds_available:
         window = (
             f"; season window weeks {config.weeks.season_start_week} to {seasonal.window_end_week}"
@@ -603,15 +679,37 @@ def _indicators(
             if seasonal.threshold_band
             else ""
         )
-        rows.append(IndicatorRow("Epidemic threshold", fm.fmt_pct(seasonal.epidemic_threshold, digits), f"intensity this week: {seasonal.intensity}{window}{band}"))
-        rows.append(IndicatorRow("Intensity thresholds", f"{fm.fmt_pct(seasonal.medium)} / {fm.fmt_pct(seasonal.high)} / {fm.fmt_pct(seasonal.very_high)}", "medium / high / very high"))
+        rows.append(
+            IndicatorRow(
+                "Epidemic threshold",
+                fm.fmt_pct(seasonal.epidemic_threshold, digits),
+                f"intensity this week: {seasonal.intensity}{window}{band}",
+            )
+        )
+        rows.append(
+            IndicatorRow(
+                "Intensity thresholds",
+                f"{fm.fmt_pct(seasonal.medium)} / {fm.fmt_pct(seasonal.high)} / {fm.fmt_pct(seasonal.very_high)}",
+                "medium / high / very high",
+            )
+        )
     else:
-        rows.append(IndicatorRow("Epidemic threshold", fm.NOT_AVAILABLE, seasonal.thresholds_reason))
+        rows.append(
+            IndicatorRow("Epidemic threshold", fm.NOT_AVAILABLE, seasonal.thresholds_reason)
+        )
     if seasonal.season_peak is not None:
         peak_week, peak_pct = seasonal.season_peak
-        rows.append(IndicatorRow("Season peak so far", fm.fmt_pct(peak_pct), f"week {peak_week.week}"))
+        rows.append(
+            IndicatorRow("Season peak so far", fm.fmt_pct(peak_pct), f"week {peak_week.week}")
+        )
     if seasonal.onset_week is not None:
-        rows.append(IndicatorRow("Season onset", f"week {seasonal.onset_week.week}", f"first of {config.seasonal.onset_weeks} consecutive weeks at or above the epidemic threshold"))
+        rows.append(
+            IndicatorRow(
+                "Season onset",
+                f"week {seasonal.onset_week.week}",
+                f"first of {config.seasonal.onset_weeks} consecutive weeks at or above the epidemic threshold",
+            )
+        )
     return tuple(rows)
 
 
@@ -654,10 +752,18 @@ def _district_rows(
             DistrictRow(
                 district_id=str(rec["district_id"]),
                 name=str(rec["district_name"]),
-                sites=fm.fmt_count(rec["reporting_sites"]) if math.isfinite(_f(rec["reporting_sites"])) else "—",
-                ili_visits=fm.fmt_count(rec["ili_visits"]) if show else ("withheld" if suppressed else "—"),
-                total_visits="withheld" if suppressed else (fm.fmt_count(total) if math.isfinite(total) else "—"),
-                ili_pct=fm.fmt_pct(pct, digits) if show else ("withheld" if suppressed else "no data"),
+                sites=fm.fmt_count(rec["reporting_sites"])
+                if math.isfinite(_f(rec["reporting_sites"]))
+                else "—",
+                ili_visits=fm.fmt_count(rec["ili_visits"])
+                if show
+                else ("withheld" if suppressed else "—"),
+                total_visits="withheld"
+                if suppressed
+                else (fm.fmt_count(total) if math.isfinite(total) else "—"),
+                ili_pct=fm.fmt_pct(pct, digits)
+                if show
+                else ("withheld" if suppressed else "no data"),
                 ci=fm.fmt_interval(_f(rec["ci_low"]), _f(rec["ci_high"])) if show else "—",
                 change=change_text,
                 change_class=verdict if show and math.isfinite(change_pp) else "not assessable",

@@ -101,11 +101,7 @@ def natural_key(text: str) -> tuple[tuple[int, int, str], ...]:
     ['d1', 'D2', 'D10']
     """
     parts = re.split(r"(\d+)", text)
-    return tuple(
-        (1, int(p), p) if p.isdigit() else (0, 0, p.casefold())
-        for p in parts
-        if p != ""
-    )
+    return tuple((1, int(p), p) if p.isdigit() else (0, 0, p.casefold()) for p in parts if p != "")
 
 
 _NUMBER = re.compile(r"[+\-\u2212±]?\d[\d,]*(?:\.\d+)?")
@@ -146,9 +142,11 @@ def _sort_key(key: str) -> Callable[[Any], Any]:
         rank = _class_rank(words.CLASS_ORDERS[key])
         return lambda r: rank(str(getattr(r, key)))
     if key in NUMERIC:
+
         def number(r: Any) -> tuple[bool, float]:
             x = _number(str(getattr(r, key)))
             return (math.isnan(x), 0.0 if math.isnan(x) else x)
+
         return number
     if key == "flags":
         return lambda r: (str(r.flags) in EMPTY, -len(str(r.flags).split(",")), str(r.flags))
@@ -193,6 +191,8 @@ def district_table(
     for i, r in enumerate(listed):
         cells = [Cell(str(getattr(r, k)), positions[k][i], k in NUMERIC) for k in keys]
         out.append(TableRow(name=cells[0], cells=tuple(cells[1:]), muted=bool(r.suppressed)))
-    any_suppressed = any(r.suppressed and str(getattr(r, "ili_pct", "")) == "suppressed" for r in listed)
+    any_suppressed = any(
+        r.suppressed and str(getattr(r, "ili_pct", "")) == "suppressed" for r in listed
+    )
     key = words.table_key(keys, min_visits=min_visits if any_suppressed else None)
     return DistrictTable(columns=columns, rows=tuple(out), key=key)

@@ -57,7 +57,11 @@ def _markdown_safe(value: Any) -> Any:
     if dataclasses.is_dataclass(value) and not isinstance(value, type):
         return dataclasses.replace(
             value,
-            **{f.name: _markdown_safe(getattr(value, f.name)) for f in dataclasses.fields(value) if f.init},
+            **{
+                f.name: _markdown_safe(getattr(value, f.name))
+                for f in dataclasses.fields(value)
+                if f.init
+            },
         )
     return value
 

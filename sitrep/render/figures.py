@@ -174,7 +174,9 @@ def freeze_layout(fig: Figure) -> None:
     engine = fig.get_layout_engine()
     if engine is not None and not isinstance(engine, PlaceHolderLayoutEngine):
         engine.execute(fig)
-    with matplotlib.rc_context({"figure.autolayout": False, "figure.constrained_layout.use": False}):
+    with matplotlib.rc_context(
+        {"figure.autolayout": False, "figure.constrained_layout.use": False}
+    ):
         fig.set_layout_engine(None)  # with both settings off, None means no engine at all
 
 

@@ -28,7 +28,9 @@ def asset_dir() -> Path:
     return Path(str(importlib.resources.files("sitrep.assets")))
 
 
-def environment(template_dir: Path | None = None, *, escape_html: bool = True) -> jinja2.Environment:
+def environment(
+    template_dir: Path | None = None, *, escape_html: bool = True
+) -> jinja2.Environment:
     """A strict, escaping environment over ``template_dir`` (packaged templates by default).
 
     ``escape_html=False`` is for formats that are not HTML (Markdown, plain
@@ -64,7 +66,9 @@ def _font_face() -> str:
     return "\n".join(rules)
 
 
-def render_html(context: ReportContext, template_dir: Path | None = None, *, for_pdf: bool = False) -> str:
+def render_html(
+    context: ReportContext, template_dir: Path | None = None, *, for_pdf: bool = False
+) -> str:
     """Render the report as one self-contained HTML document.
 
     ``for_pdf`` selects the print layout (top districts only, PNG-free SVG
@@ -88,6 +92,8 @@ def render_text(
     them for the output format (Markdown escaping, or none for plain text).
     """
     try:
-        return environment(template_dir, escape_html=escape_html).get_template(name).render(**values)
+        return (
+            environment(template_dir, escape_html=escape_html).get_template(name).render(**values)
+        )
     except jinja2.TemplateError as exc:
         raise RenderError(f"template {name} failed: {exc}") from exc

@@ -117,14 +117,24 @@ def draw_report_figures(
         if not panels:  # no cut points this week (e.g. every district withheld): one empty panel
             panels = [(f"Week {week.week}", np.asarray(analysis.terciles.ranks))]
         fig = maps.tercile_small_multiples(
-            geoms, panels, cuts, suppressed_label=words.LEGEND_LABELS["terciles"]["0"], decimals=digits
+            geoms,
+            panels,
+            cuts,
+            suppressed_label=words.LEGEND_LABELS["terciles"]["0"],
+            decimals=digits,
         )
         ranks = np.asarray(analysis.terciles.ranks)
         counts = cap.legend_counts([str(int(r)) for r in ranks], words.LEGEND_LABELS["terciles"])
         first = analysis.recent_terciles[0][0].week if analysis.recent_terciles else week.week
-        drawn(_item("terciles", *cap.tercile_caption(
-            first_week=first, week=week.week, cuts=cuts, digits=digits, counts=counts
-        ), fig))
+        drawn(
+            _item(
+                "terciles",
+                *cap.tercile_caption(
+                    first_week=first, week=week.week, cuts=cuts, digits=digits, counts=counts
+                ),
+                fig,
+            )
+        )
 
         classes = [str(c) for c in table["change_class"]]
         fig = maps.change_map(geoms, classes, title=None, width_cm=8.4)
@@ -135,25 +145,61 @@ def draw_report_figures(
         cluster_labels = [str(c) for c in table["cluster_label"]]
         fig = maps.cluster_map(geoms, cluster_labels, title=None, width_cm=8.4)
         groups = []
-        for label in (ClusterLabel.HIGH_HIGH, ClusterLabel.LOW_LOW, ClusterLabel.HIGH_LOW, ClusterLabel.LOW_HIGH):
-            members = [n for n, lab in zip(names, cluster_labels, strict=True) if lab == label.value]
+        for label in (
+            ClusterLabel.HIGH_HIGH,
+            ClusterLabel.LOW_LOW,
+            ClusterLabel.HIGH_LOW,
+            ClusterLabel.LOW_HIGH,
+        ):
+            members = [
+                n for n, lab in zip(names, cluster_labels, strict=True) if lab == label.value
+            ]
             if members:
                 groups.append((label.value, members))
-        others = cap.count_phrase(cluster_labels, ["not significant", "no neighbours", "no data", "not assessable"])
-        drawn(_item("clusters", *cap.cluster_caption(
-            variable=variable_words(analysis.settings.cluster_variable), groups=groups, others=others,
-            counts=cap.legend_counts(cluster_labels, words.LEGEND_LABELS["cluster"]),
-        ), fig))
-
-        last = np.array([_display(v, s) for v, s in zip(table["prior_ili_percent"], table["suppressed"], strict=True)])
-        now = np.array([_display(v, s) for v, s in zip(table["ili_percent"], table["suppressed"], strict=True)])
-        fig = maps.comparison_map(
-            geoms, last, now,
-            titles=(f"Week {analysis.prior_week.week if analysis.prior_week else ''} (revised)", f"Week {week.week}"),
+        others = cap.count_phrase(
+            cluster_labels, ["not significant", "no neighbours", "no data", "not assessable"]
         )
-        drawn(_item("comparison", *cap.comparison_caption(
-            last_range=_range(last[np.isfinite(last)]), now_range=_range(now[np.isfinite(now)])
-        ), fig))
+        drawn(
+            _item(
+                "clusters",
+                *cap.cluster_caption(
+                    variable=variable_words(analysis.settings.cluster_variable),
+                    groups=groups,
+                    others=others,
+                    counts=cap.legend_counts(cluster_labels, words.LEGEND_LABELS["cluster"]),
+                ),
+                fig,
+            )
+        )
+
+        last = np.array(
+            [
+                _display(v, s)
+                for v, s in zip(table["prior_ili_percent"], table["suppressed"], strict=True)
+            ]
+        )
+        now = np.array(
+            [_display(v, s) for v, s in zip(table["ili_percent"], table["suppressed"], strict=True)]
+        )
+        fig = maps.comparison_map(
+            geoms,
+            last,
+            now,
+            titles=(
+                f"Week {analysis.prior_week.week if analysis.prior_week else ''} (revised)",
+                f"Week {week.week}",
+            ),
+        )
+        drawn(
+            _item(
+                "comparison",
+                *cap.comparison_caption(
+                    last_range=_range(last[np.isfinite(last)]),
+                    now_range=_range(now[np.isfinite(now)]),
+                ),
+                fig,
+            )
+        )
     if jurisdiction:
         footer = cap.source_line(jurisdiction=jurisdiction)
         items = [
@@ -164,7 +210,9 @@ def draw_report_figures(
             )
             for item in items
             for heading in [
-                cap.shared_title(title=item.title, week_number=week.week, week_year=week.year, dates=week_dates)
+                cap.shared_title(
+                    title=item.title, week_number=week.week, week_year=week.year, dates=week_dates
+                )
             ]
         ]
     return ReportFigures(tuple(items))
@@ -194,8 +242,12 @@ def _trend(analysis: WeekAnalysis, seasonal: SeasonalContext, digits: int) -> Fi
     past = [(label, np.array(values, dtype=float)) for label, values in seasonal.past_curves]
     thresholds = {}
     if seasonal.thresholds_available:
-        for key, value in (("epidemic", seasonal.epidemic_threshold), ("medium", seasonal.medium),
-                           ("high", seasonal.high), ("very_high", seasonal.very_high)):
+        for key, value in (
+            ("epidemic", seasonal.epidemic_threshold),
+            ("medium", seasonal.medium),
+            ("high", seasonal.high),
+            ("very_high", seasonal.very_high),
+        ):
             if value is not None:
                 thresholds[words.THRESHOLD_NAMES[key]] = float(value)
     # Tick labels: this season's week-ending dates (past seasons are aligned by week of the season).
@@ -204,18 +256,29 @@ def _trend(analysis: WeekAnalysis, seasonal: SeasonalContext, digits: int) -> Fi
     ends = [(start + k).end for k in range(n)]
     ticks = [words.week_ending_tick(day, with_year=False) for day in ends]
     fig = charts.trend_chart(
-        weeks, current, past, baseline=seasonal.baseline, thresholds=thresholds or None,
-        week_labels=ticks, x_label=words.trend_x_label(dates=True, season=seasonal.season_label),
-        value_digits=digits, max_ticks=9, height_cm=6.0,
+        weeks,
+        current,
+        past,
+        baseline=seasonal.baseline,
+        thresholds=thresholds or None,
+        week_labels=ticks,
+        x_label=words.trend_x_label(dates=True, season=seasonal.season_label),
+        value_digits=digits,
+        max_ticks=9,
+        height_cm=6.0,
     )
     peaks = [float(np.nanmax(v)) for _, v in past if np.isfinite(v).any()]
     now = float(current[-1]) if current.size else math.nan
-    return _item("trend", *cap.trend_caption(
-        season_label=seasonal.season_label,
-        season_week=seasonal.season_week,
-        now=now,
-        past_peaks=peaks,
-        threshold=seasonal.epidemic_threshold if seasonal.thresholds_available else None,
-        baseline=seasonal.baseline,
-        digits=digits,
-    ), fig)
+    return _item(
+        "trend",
+        *cap.trend_caption(
+            season_label=seasonal.season_label,
+            season_week=seasonal.season_week,
+            now=now,
+            past_peaks=peaks,
+            threshold=seasonal.epidemic_threshold if seasonal.thresholds_available else None,
+            baseline=seasonal.baseline,
+            digits=digits,
+        ),
+        fig,
+    )

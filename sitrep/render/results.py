@@ -51,20 +51,65 @@ __all__ = [
 ]
 
 RESULT_COLUMNS = (
-    "jurisdiction", "week", "week_start", "week_end",
-    "district_id", "district_name", "reporting_sites", "ili_visits", "total_visits",
-    "ili_percent", "ci_low", "ci_high", "suppressed", "prior_suppressed", "prior_ili_percent",
-    "prior_ili_percent_published", "change_pp", "change_low_pp", "change_high_pp",
-    "change_relative", "change_from_zero", "change_p", "change_class", "tercile", "eb_percent",
-    "local_i", "p_value", "q_value", "cluster_label", "prior_cluster_label", "transition",
+    "jurisdiction",
+    "week",
+    "week_start",
+    "week_end",
+    "district_id",
+    "district_name",
+    "reporting_sites",
+    "ili_visits",
+    "total_visits",
+    "ili_percent",
+    "ci_low",
+    "ci_high",
+    "suppressed",
+    "prior_suppressed",
+    "prior_ili_percent",
+    "prior_ili_percent_published",
+    "change_pp",
+    "change_low_pp",
+    "change_high_pp",
+    "change_relative",
+    "change_from_zero",
+    "change_p",
+    "change_class",
+    "tercile",
+    "eb_percent",
+    "local_i",
+    "p_value",
+    "q_value",
+    "cluster_label",
+    "prior_cluster_label",
+    "transition",
 )
 COUNT_COLUMNS = ("reporting_sites", "ili_visits", "total_visits")
 """Columns holding counts: written as whole numbers."""
-_SUPPRESSIBLE = ("ili_visits", "total_visits", "ili_percent", "ci_low", "ci_high", "change_pp",
-                 "change_low_pp", "change_high_pp", "change_relative", "change_p", "eb_percent",
-                 "local_i", "p_value", "q_value")
-_PRIOR_SUPPRESSIBLE = ("prior_ili_percent", "prior_ili_percent_published", "change_pp",
-                       "change_low_pp", "change_high_pp", "change_relative", "change_p")
+_SUPPRESSIBLE = (
+    "ili_visits",
+    "total_visits",
+    "ili_percent",
+    "ci_low",
+    "ci_high",
+    "change_pp",
+    "change_low_pp",
+    "change_high_pp",
+    "change_relative",
+    "change_p",
+    "eb_percent",
+    "local_i",
+    "p_value",
+    "q_value",
+)
+_PRIOR_SUPPRESSIBLE = (
+    "prior_ili_percent",
+    "prior_ili_percent_published",
+    "change_pp",
+    "change_low_pp",
+    "change_high_pp",
+    "change_relative",
+    "change_p",
+)
 INTERNAL_RESULTS = "internal-results-UNSUPPRESSED.csv"
 """Bundle file with the true values of withheld districts (``output.keep_suppressed_values``)."""
 INTERNAL_COLUMNS = (*RESULT_COLUMNS, "withheld_rule", "prior_withheld_rule")
@@ -198,12 +243,17 @@ def results_json(analysis: WeekAnalysis, settings: AnalysisSettings, *, jurisdic
         return x
 
     summary = {
-        "ili_percent": clean(j.ili_percent), "ci_low": clean(j.ci_low), "ci_high": clean(j.ci_high),
+        "ili_percent": clean(j.ili_percent),
+        "ci_low": clean(j.ci_low),
+        "ci_high": clean(j.ci_high),
         "prior_ili_percent": clean(j.prior_ili_percent),
         "prior_ili_percent_published": clean(j.prior_ili_percent_published),
-        "change_pp": clean(j.change_pp), "change_class": clean(j.change_class),
-        "ili_visits": clean(j.ili_visits), "total_visits": clean(j.total_visits),
-        "districts_reporting": clean(j.n_districts_reporting), "districts": clean(j.n_districts_total),
+        "change_pp": clean(j.change_pp),
+        "change_class": clean(j.change_class),
+        "ili_visits": clean(j.ili_visits),
+        "total_visits": clean(j.total_visits),
+        "districts_reporting": clean(j.n_districts_reporting),
+        "districts": clean(j.n_districts_total),
     }
     summary.update(withheld=j.withheld, prior_withheld=j.prior_withheld)
     if j.withheld:
@@ -286,8 +336,16 @@ def redact_findings(report: ValidationReport, withheld: Iterable[str]) -> Valida
 INTERNAL_QUALITY_CSV = "internal-data-quality.csv"
 """The internal annex: for the surveillance team, never attached to the partner e-mail."""
 INTERNAL_QUALITY_COLUMNS = (
-    "severity", "rule", "file", "line", "column", "district_id", "district_name",
-    "named_on_page_one", "value", "message",
+    "severity",
+    "rule",
+    "file",
+    "line",
+    "column",
+    "district_id",
+    "district_name",
+    "named_on_page_one",
+    "value",
+    "message",
 )
 
 

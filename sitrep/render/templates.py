@@ -66,7 +66,11 @@ TEMPLATES: tuple[Template, ...] = (
         "the report: report.html, and report.pdf from the same template",
         (
             _C,
-            ("for_pdf", "bool", "true when rendering for the PDF (top districts only, print layout)"),
+            (
+                "for_pdf",
+                "bool",
+                "true when rendering for the PDF (top districts only, print layout)",
+            ),
             ("font_face", "str", "CSS @font-face rules for the shipped fonts (empty for the HTML)"),
         ),
     ),
@@ -77,12 +81,18 @@ TEMPLATES: tuple[Template, ...] = (
     ),
     Template("email.txt.j2", "email.txt, the body of the e-mail", (_C,)),
     Template("report.css", "the report's style sheet (HTML and PDF)", included_by="report.html.j2"),
-    Template("sort_table.js", "the sorting of the HTML district table", included_by="report.html.j2"),
+    Template(
+        "sort_table.js", "the sorting of the HTML district table", included_by="report.html.j2"
+    ),
     Template(
         "archive_index.html.j2",
         "ARCHIVE/index.html, the audit index of every issued week (sitrep index)",
         (
-            ("entries", "list of BundleEntry", "one row per bundle (sitrep/deliver/index.py), newest first"),
+            (
+                "entries",
+                "list of BundleEntry",
+                "one row per bundle (sitrep/deliver/index.py), newest first",
+            ),
             ("jurisdictions", "list of str", "the jurisdictions in the archive"),
             ("generated", "str", "when the index was checked, UTC"),
             ("problems", "int", "bundles that fail their checksums or break their chain"),
@@ -92,12 +102,18 @@ TEMPLATES: tuple[Template, ...] = (
         "archive_compare.html.j2",
         "ARCHIVE/_compare/<jurisdiction>-<week>-v<j>-v<k>.html, what a reissue changed",
         (
-            ("comparison", "Comparison", "figures, sentences and figure files that differ (sitrep/deliver/index.py)"),
+            (
+                "comparison",
+                "Comparison",
+                "figures, sentences and figure files that differ (sitrep/deliver/index.py)",
+            ),
             ("generated", "str", "when the comparison was made, UTC"),
         ),
     ),
     Template("archive.css", "the style of the archive pages", included_by="archive_index.html.j2"),
-    Template("archive_index.js", "the sorting of the archive table", included_by="archive_index.html.j2"),
+    Template(
+        "archive_index.js", "the sorting of the archive table", included_by="archive_index.html.j2"
+    ),
 )
 """Every file of the packaged template folder, with what it receives."""
 
@@ -143,10 +159,16 @@ def context_fields(name: str, template_dir: Path | None = None) -> tuple[str, ..
         source, filename, _ = loader.get_source(env, current)
         tree = env.parse(source, current, filename)
         for node in tree.find_all(jinja2.nodes.Getattr):
-            if isinstance(node.node, jinja2.nodes.Name) and node.node.name == "c" and node.attr not in seen:
+            if (
+                isinstance(node.node, jinja2.nodes.Name)
+                and node.node.name == "c"
+                and node.attr not in seen
+            ):
                 seen.append(node.attr)
         for inc in tree.find_all(jinja2.nodes.Include):
-            if isinstance(inc.template, jinja2.nodes.Const) and str(inc.template.value).endswith(".j2"):
+            if isinstance(inc.template, jinja2.nodes.Const) and str(inc.template.value).endswith(
+                ".j2"
+            ):
                 pending.append(str(inc.template.value))
     return tuple(seen)
 
@@ -162,7 +184,9 @@ def template_problems(folder: Path) -> list[tuple[str, int | None, str]]:
     import jinja2.meta
 
     fields = {f.name for f in dataclasses.fields(ReportContext)} | {
-        n for n, v in vars(ReportContext).items() if isinstance(v, property)  # e.g. c.map_figures
+        n
+        for n, v in vars(ReportContext).items()
+        if isinstance(v, property)  # e.g. c.map_figures
     }
     receives = {t.name: {v for v, _, _ in t.variables} for t in TEMPLATES}
     env = environment(folder)
@@ -193,7 +217,11 @@ def template_problems(folder: Path) -> list[tuple[str, int | None, str]]:
                 )
             )
         for node in tree.find_all(jinja2.nodes.Getattr):
-            if isinstance(node.node, jinja2.nodes.Name) and node.node.name == "c" and node.attr not in fields:
+            if (
+                isinstance(node.node, jinja2.nodes.Name)
+                and node.node.name == "c"
+                and node.attr not in fields
+            ):
                 out.append(
                     (
                         t.name,
@@ -259,8 +287,11 @@ def templates_markdown() -> str:
     for t in TEMPLATES:
         out += [f"## `{t.name}`", "", f"Makes {t.purpose}."]
         if t.included_by:
-            out += ["", f"Included by `{t.included_by}`, so it sees the same variables; the "
-                    "packaged file uses none."]
+            out += [
+                "",
+                f"Included by `{t.included_by}`, so it sees the same variables; the "
+                "packaged file uses none.",
+            ]
             out.append("")
             continue
         out += ["", "Variables:", ""]
@@ -269,7 +300,13 @@ def templates_markdown() -> str:
             out.append("")  # the archive pages: their variables are described above
             continue
         used = context_fields(t.name)
-        out += ["", "Fields of `c` the packaged template uses:", "", "| field | type |", "| --- | --- |"]
+        out += [
+            "",
+            "Fields of `c` the packaged template uses:",
+            "",
+            "| field | type |",
+            "| --- | --- |",
+        ]
         out += [f"| `c.{n}` | `{_field_type(fields, n)}` |" for n in used]
         out.append("")
     out += ["## Every field of `c` (ReportContext)", "", "| field | type |", "| --- | --- |"]

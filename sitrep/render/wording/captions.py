@@ -33,7 +33,9 @@ def legend_counts(values: Sequence[str], words: Mapping[str, str]) -> str:
     'clear increase 2, not assessable 1 (3 districts)'
     """
     counts = Counter(values)
-    listed = ", ".join(f"{word[:1].lower() + word[1:]} {counts[key]}" for key, word in words.items() if counts[key])
+    listed = ", ".join(
+        f"{word[:1].lower() + word[1:]} {counts[key]}" for key, word in words.items() if counts[key]
+    )
     return f"{listed} ({plural(len(values), 'district')})" if listed else "no districts"
 
 
@@ -54,7 +56,9 @@ def tercile_caption(
     *, first_week: int, week: int, cuts: tuple[float, float] | None, digits: int, counts: str
 ) -> tuple[str, str, str]:
     """(title, caption, alt) of the tercile small multiples; cut points printed with ``digits``."""
-    hatched = "Hatched districts had no data, too few visits, or are withheld to protect small counts."
+    hatched = (
+        "Hatched districts had no data, too few visits, or are withheld to protect small counts."
+    )
     if not cuts:
         return (
             f"ILI% terciles, weeks {first_week} to {week}",
@@ -93,7 +97,8 @@ def cluster_caption(
         "Local Moran's I clusters",
         f"Districts whose {variable} resembles (high-high, low-low) or contrasts with (high-low, low-high) "
         "their neighbours' more than chance would suggest, after multiple-testing control. "
-        "Districts with no neighbour are never tested." + (f" Districts: {counts}." if counts else ""),
+        "Districts with no neighbour are never tested."
+        + (f" Districts: {counts}." if counts else ""),
         "Map of Local Moran's I cluster labels. "
         + (listed + ". " if listed else "No significant districts. ")
         + (f"Other districts: {others}." if others else ""),

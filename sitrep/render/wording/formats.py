@@ -145,7 +145,11 @@ def plural(n: int, one: str, many: str | None = None) -> str:
 
 
 def class_digits(
-    values: Iterable[float], cuts: Sequence[float], *, others: Sequence[float] = (), max_digits: int = 3
+    values: Iterable[float],
+    cuts: Sequence[float],
+    *,
+    others: Sequence[float] = (),
+    max_digits: int = 3,
 ) -> int:
     """Fewest decimals (1 to ``max_digits``) that keep printed classes consistent.
 

@@ -13,7 +13,13 @@ from collections.abc import Sequence
 
 from sitrep.render.wording.formats import confidence_label, join_names
 
-__all__ = ["MethodSettings", "cautions", "methods_sections", "seasonal_method_text", "variable_words"]
+__all__ = [
+    "MethodSettings",
+    "cautions",
+    "methods_sections",
+    "seasonal_method_text",
+    "variable_words",
+]
 
 _TESTS = {
     "pooled-z": "a two-sided pooled two-proportion z test",
@@ -103,46 +109,71 @@ def methods_sections(m: MethodSettings) -> tuple[tuple[str, str], ...]:
         else f"no adjustment; a district is flagged when its p-value is at most {m.alpha:g}"
     )
     return (
-        ("ILI percentage", (
-            f"ILI visits divided by all outpatient visits, per district and pooled over districts for "
-            f"{m.jurisdiction} (a pooled ratio, not a population-weighted mean). "
-            f"{_INTERVALS.get(m.interval, m.interval)} {conf} confidence intervals from unrounded counts."
-        )),
-        ("Small counts", disclosure_method_text(
-            min_visits=m.min_visits, min_count=m.min_count, suppress_zero=m.suppress_zero
-        )),
-        ("Week-over-week change", (
-            f"This week against last week's revised value, in percentage points, with a Newcombe hybrid "
-            f"score {conf} confidence interval, tested with {_TESTS.get(m.change_test, m.change_test)}. "
-            f"The change is detectable when p < {m.change_alpha:g} and the interval excludes zero. "
-            f"A clear increase or decrease is detectable and at least {m.min_change_pp:g} percentage "
-            "points; a small but detectable change is below that; otherwise there is no clear change."
-        )),
-        ("Terciles", (
-            "Cut points are the one-third and two-thirds quantiles (linear interpolation) of this week's "
-            "district values not withheld; a value equal to a cut point belongs to the lower class, "
-            "and values and cut points are printed with enough decimals to show which side they are on. "
-            "The same cut points class the earlier weeks in the small multiples."
-        )),
-        ("Spatial weights", (
-            f"{weights}, each district's neighbours weighted equally"
-            + (f", islands linked to their {m.link_islands_k} nearest districts" if m.link_islands_k else "")
-            + f"; {m.n_links} links; {islands}."
-        )),
-        ("Local Moran's I", (
-            f"Local Moran's I (Anselin 1995) of {variable_words(m.cluster_variable)} per district, compared "
-            f"with the same statistic after {m.permutations:,} random reshufflings of the other districts' "
-            f"values (conditional permutation, seed {m.seed}); the pseudo p-value counts the reshufflings at "
-            f"least as extreme as the observed value, on the side it falls. Multiple testing: {multiple}. "
-            "Districts without data or withheld to protect small counts are left out; districts with no neighbour are "
-            "never tested."
-        )),
+        (
+            "ILI percentage",
+            (
+                f"ILI visits divided by all outpatient visits, per district and pooled over districts for "
+                f"{m.jurisdiction} (a pooled ratio, not a population-weighted mean). "
+                f"{_INTERVALS.get(m.interval, m.interval)} {conf} confidence intervals from unrounded counts."
+            ),
+        ),
+        (
+            "Small counts",
+            disclosure_method_text(
+                min_visits=m.min_visits, min_count=m.min_count, suppress_zero=m.suppress_zero
+            ),
+        ),
+        (
+            "Week-over-week change",
+            (
+                f"This week against last week's revised value, in percentage points, with a Newcombe hybrid "
+                f"score {conf} confidence interval, tested with {_TESTS.get(m.change_test, m.change_test)}. "
+                f"The change is detectable when p < {m.change_alpha:g} and the interval excludes zero. "
+                f"A clear increase or decrease is detectable and at least {m.min_change_pp:g} percentage "
+                "points; a small but detectable change is below that; otherwise there is no clear change."
+            ),
+        ),
+        (
+            "Terciles",
+            (
+                "Cut points are the one-third and two-thirds quantiles (linear interpolation) of this week's "
+                "district values not withheld; a value equal to a cut point belongs to the lower class, "
+                "and values and cut points are printed with enough decimals to show which side they are on. "
+                "The same cut points class the earlier weeks in the small multiples."
+            ),
+        ),
+        (
+            "Spatial weights",
+            (
+                f"{weights}, each district's neighbours weighted equally"
+                + (
+                    f", islands linked to their {m.link_islands_k} nearest districts"
+                    if m.link_islands_k
+                    else ""
+                )
+                + f"; {m.n_links} links; {islands}."
+            ),
+        ),
+        (
+            "Local Moran's I",
+            (
+                f"Local Moran's I (Anselin 1995) of {variable_words(m.cluster_variable)} per district, compared "
+                f"with the same statistic after {m.permutations:,} random reshufflings of the other districts' "
+                f"values (conditional permutation, seed {m.seed}); the pseudo p-value counts the reshufflings at "
+                f"least as extreme as the observed value, on the side it falls. Multiple testing: {multiple}. "
+                "Districts without data or withheld to protect small counts are left out; districts with no neighbour are "
+                "never tested."
+            ),
+        ),
         ("Global Moran's I", m.global_text),
         ("Seasonal thresholds", m.seasonal_text),
-        ("Week numbering", (
-            f"{m.week_system}; season {m.season_label} starts in week {m.season_start_week}. "
-            "Some years have a week 53."
-        )),
+        (
+            "Week numbering",
+            (
+                f"{m.week_system}; season {m.season_label} starts in week {m.season_start_week}. "
+                "Some years have a week 53."
+            ),
+        ),
     )
 
 
@@ -194,7 +225,9 @@ def seasonal_method_text(
     return text
 
 
-def cautions(*, confidence: float, case_definition: str, coverage: str, completeness: str) -> tuple[str, ...]:
+def cautions(
+    *, confidence: float, case_definition: str, coverage: str, completeness: str
+) -> tuple[str, ...]:
     """The cautions section; the first is printed in the header too."""
     return (
         "Figures are provisional: recent weeks usually rise as late reports arrive, and past weeks"
@@ -245,7 +278,11 @@ def completeness_sentence(*, visits_now: int | None, visits_usual: float | None,
     return (
         f"This week's {visits_now:,} visits are {share:.0%} of the median of the previous {weeks} weeks"
         f" ({int(round(visits_usual)):,}); "
-        + ("reporting looks as complete as usual." if share >= 0.9 else "reporting is less complete than usual.")
+        + (
+            "reporting looks as complete as usual."
+            if share >= 0.9
+            else "reporting is less complete than usual."
+        )
     )
 
 

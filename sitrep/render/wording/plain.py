@@ -55,7 +55,9 @@ def plain_change(*, verdict: str, pct_before: float, rising_for: int = 0) -> str
     return text
 
 
-def plain_season(*, pct: float, threshold: float | None, digits: int = 1, unsettled: bool = False) -> str:
+def plain_season(
+    *, pct: float, threshold: float | None, digits: int = 1, unsettled: bool = False
+) -> str:
     """The week against the level that marks the season's epidemic period."""
     if threshold is None:
         return "There is not yet enough history to say how this compares with a usual season."
@@ -94,7 +96,9 @@ def plain_quality(*, revised: bool, n_warnings: int, completeness_drop: bool = F
     """Whether figures moved, were incomplete or were queried."""
     if not n_warnings:
         return "Our checks found no problems with this week's figures."
-    text = "Some figures for earlier weeks were updated as late reports arrived. " if revised else ""
+    text = (
+        "Some figures for earlier weeks were updated as late reports arrived. " if revised else ""
+    )
     if completeness_drop:
         text += (
             "Fewer visits were reported than usual this week (a fall in reporting completeness), so some "

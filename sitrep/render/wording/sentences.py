@@ -166,7 +166,11 @@ def change_sentence(
     """
     before = f"{fmt_pct(pct_before)} in week {prior_week_number}"
     revised = ""
-    if finite(revised_from) and finite(pct_before) and round(revised_from, 1) != round(pct_before, 1):
+    if (
+        finite(revised_from)
+        and finite(pct_before)
+        and round(revised_from, 1) != round(pct_before, 1)
+    ):
         revised = f" (revised from {fmt_pct(revised_from)} as late reports arrived)"
     elif finite(pct_before):
         revised = " (as revised this week)"
@@ -395,7 +399,9 @@ def quality_highlight(rule: str, count: int) -> str:
     return f"{RULE_PHRASES.get(rule, rule.replace('-', ' '))} ({count})"
 
 
-def data_quality_sentence(*, n_warnings: int, highlights: Sequence[str], in_section: bool = False) -> str:
+def data_quality_sentence(
+    *, n_warnings: int, highlights: Sequence[str], in_section: bool = False
+) -> str:
     """One sentence summarising the data-quality warnings (no pointer to the section inside it)."""
     if n_warnings == 0:
         return "Validation against last week's table found no data-quality problems."
@@ -443,9 +449,7 @@ def revision_note(*, published: float | None, revised: float | None) -> str:
         return "unchanged since published"
     for digits in (1, 2, 3, 4):
         if round(abs(diff), digits) > 0:
-            return (
-                f"revised by {fmt_pp(diff, digits)} since published ({fmt_pct(published, max(digits, 1))} then)"
-            )
+            return f"revised by {fmt_pp(diff, digits)} since published ({fmt_pct(published, max(digits, 1))} then)"
     return "revised by less than 0.0001 percentage points since published"
 
 
@@ -467,7 +471,9 @@ def reporting_note(sites: float | None) -> str:
     return f"{fmt_count(sites)} reporting sites" if finite(sites) else ""
 
 
-def global_moran_text(*, available: bool, i: float, expectation: float, p_sim: float, n: int, notes: Sequence[str]) -> str:
+def global_moran_text(
+    *, available: bool, i: float, expectation: float, p_sim: float, n: int, notes: Sequence[str]
+) -> str:
     """The global Moran's I line of the methods."""
     if not available or not finite(i):
         return "Not computed this week: " + " ".join(notes)
@@ -519,7 +525,9 @@ def withheld_sentence(
         text += "; their counts, percentages and every figure derived from them are not shown."
     for which, reason in (("This week's", total_now_reason), ("Last week's", total_before_reason)):
         if reason:
-            text += (" " if text else "") + f"{which} jurisdiction total is withheld as well: {reason}."
+            text += (
+                " " if text else ""
+            ) + f"{which} jurisdiction total is withheld as well: {reason}."
     return text
 
 

@@ -37,16 +37,24 @@ MAX_NOTE_CHARS = 44
 """Longest label or note of a tile (one line of a tile a third of an A4 page wide)."""
 
 
-def level_tile(*, pct: float | None, low: float | None, high: float | None, confidence: float, digits: int) -> Tile:
+def level_tile(
+    *, pct: float | None, low: float | None, high: float | None, confidence: float, digits: int
+) -> Tile:
     """ILI% of the jurisdiction with its interval.
 
     >>> level_tile(pct=2.183, low=2.07, high=2.30, confidence=0.95, digits=2)
     ('ILI this week', '2.18%', '95% CI 2.1–2.3%')
     """
-    return ("ILI this week", fmt_pct(pct, digits), f"{confidence_label(confidence)} CI {fmt_interval(low, high)}")
+    return (
+        "ILI this week",
+        fmt_pct(pct, digits),
+        f"{confidence_label(confidence)} CI {fmt_interval(low, high)}",
+    )
 
 
-def change_tile(*, prior_week: int, diff_pp: float | None, verdict: str, rising_for: int = 0) -> Tile:
+def change_tile(
+    *, prior_week: int, diff_pp: float | None, verdict: str, rising_for: int = 0
+) -> Tile:
     """Change since last week in percentage points, with its words.
 
     >>> change_tile(prior_week=46, diff_pp=0.42, verdict="small increase", rising_for=5)
@@ -66,7 +74,9 @@ _INTENSITY_VALUE = {
 }
 
 
-def season_tile(*, intensity: str, threshold: float | None, digits: int, unsettled: bool = False) -> Tile:
+def season_tile(
+    *, intensity: str, threshold: float | None, digits: int, unsettled: bool = False
+) -> Tile:
     """This week against the seasonal thresholds.
 
     >>> season_tile(intensity="low", threshold=2.18, digits=2, unsettled=True)
@@ -110,4 +120,8 @@ def cluster_tile(*, assessable: bool, n_high: int, n_low: int) -> Tile:
     """
     if not assessable:
         return ("In a high-value cluster", NOT_AVAILABLE, "clusters not assessable this week")
-    return ("In a high-value cluster", plural(n_high, "district"), f"in a low-value cluster: {n_low}")
+    return (
+        "In a high-value cluster",
+        plural(n_high, "district"),
+        f"in a low-value cluster: {n_low}",
+    )
