@@ -300,14 +300,19 @@ def tree_hashes(folder: Path) -> dict[str, str]:
     """SHA-256 of every file under ``folder`` (empty when it does not exist).
 
     sitrep's own cache of derived data (``.cache/`` under the archive root,
-    e.g. spatial weights) is left out: it is not a report or a bundle.
+    e.g. spatial weights) is left out: it is not a report or a bundle. So is
+    the archive's index page (``index.html``, ``_compare/``), rewritten after
+    every build with the time it was checked.
     """
     if not folder.exists():
         return {}
+    skipped = {".cache", "_compare"}
     return {
         str(p.relative_to(folder)): hashlib.sha256(p.read_bytes()).hexdigest()
         for p in sorted(folder.rglob("*"))
-        if p.is_file() and ".cache" not in p.relative_to(folder).parts
+        if p.is_file()
+        and not skipped & set(p.relative_to(folder).parts)
+        and p.relative_to(folder).as_posix() != "index.html"
     }
 
 
