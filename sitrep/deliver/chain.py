@@ -21,6 +21,7 @@ report a reader received.
 from __future__ import annotations
 
 import dataclasses
+from collections.abc import Mapping
 from pathlib import Path
 
 from sitrep.deliver.archive import (
@@ -59,6 +60,8 @@ class ChainReport:
     links: tuple[LinkReport, ...]
     first_break: str | None
     head: ChainLink | None
+    bundles: Mapping[str, VerifyResult] = dataclasses.field(default_factory=dict)
+    """Each bundle's own :func:`verify_bundle` result, by bundle id (for callers that show it)."""
 
 
 def verify_chain(jurisdiction_dir: Path, trusted_keys: tuple[PublicKey, ...] = ()) -> ChainReport:
@@ -141,7 +144,7 @@ def verify_chain(jurisdiction_dir: Path, trusted_keys: tuple[PublicKey, ...] = (
             f"{first.bundle_id}: {first.problems[0]}" if first.problems else first.bundle_id
         )
     head = chained[-1] if chained else None
-    return ChainReport(not broken, tuple(reports), first_break, head)
+    return ChainReport(not broken, tuple(reports), first_break, head, checked)
 
 
 def _link_problems(link: ChainLink, by_sequence: dict[int, list[ChainLink]]) -> list[str]:

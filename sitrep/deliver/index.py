@@ -165,9 +165,11 @@ def scan_archive(archive: Path) -> list[BundleEntry]:
         if not bundles:
             continue
         try:
-            chain = {r.bundle_id: r for r in verify_chain(folder).links}
+            walked = verify_chain(folder)
+            chain = {r.bundle_id: r for r in walked.links}
+            verified = dict(walked.bundles)
         except DeliveryError:
-            chain = {}
+            chain, verified = {}, {}
         versions: dict[str, list[int]] = {}
         for bundle_id, _ in bundles:
             week_label, number = bundle_id.split("/v")
@@ -177,7 +179,7 @@ def scan_archive(archive: Path) -> list[BundleEntry]:
             manifest = manifest if isinstance(manifest, dict) else {}
             week, version_text = bundle_id.split("/v")
             version = int(version_text)
-            checked = verify_bundle(path)
+            checked = verified.get(bundle_id) or verify_bundle(path)  # the walk hashed it already
             link = chain.get(bundle_id)
             reissue = _section(manifest, "reissue")
             validation = _section(manifest, "validation")
