@@ -28,6 +28,7 @@ __all__ = [
     "FindingGroup",
     "InputFile",
     "Severity",
+    "SourceColumns",
     "ValidationReport",
 ]
 
@@ -249,6 +250,24 @@ COUNT_COLUMNS = ("district_id", "week", "reporting_sites", "ili_visits", "total_
 """Internal column names of :attr:`CountTable.frame` (plus ``district_name``, ``line``)."""
 
 
+@dataclasses.dataclass(frozen=True)
+class SourceColumns:
+    """The names a count table's file gives its columns, which findings point at.
+
+    Each field holds the header cell read as that internal column of
+    :attr:`CountTable.frame` (``week`` lists the week columns, comma-separated);
+    a column the file does not have keeps its internal name.
+    """
+
+    district_id: str = "district_id"
+    district_name: str = "district_name"
+    week: str = "week"
+    reporting_sites: str = "reporting_sites"
+    ili_visits: str = "ili_visits"
+    total_visits: str = "total_visits"
+    rate_percent: str = "rate_percent"
+
+
 @dataclasses.dataclass(frozen=True, eq=False)
 class CountTable:
     """Weekly counts in long form: one row per district and epi week.
@@ -258,12 +277,16 @@ class CountTable:
     optional ``rate_percent`` (a supplied rate converted to percent), ``reporting_sites``
     (float, NaN when not supplied), ``ili_visits`` and ``total_visits``
     (int64), ``line`` (1-based line in the source file, header = 1).
-    Rows are sorted by week, then district id.
+    Rows are sorted by week, then district id. ``columns`` names the columns
+    as in the file; ``numeric_id_lines`` are the lines whose id cell was stored
+    as a whole number (XLSX, Parquet) and read as its digits.
     """
 
     frame: pd.DataFrame
     system: WeekSystem
     source: InputFile
+    columns: SourceColumns = SourceColumns()
+    numeric_id_lines: tuple[int, ...] = ()
 
     @property
     def weeks(self) -> tuple[EpiWeek, ...]:
@@ -292,12 +315,16 @@ class Districts:
     frame in the projected CRS used for maps and distances (``frame`` itself
     when that is the file's CRS); ``projection`` says which CRS that is and
     how it was chosen (one sentence for the methods note and the manifest).
+    ``id_column`` is the file's id field and ``numeric_ids`` says whether the
+    file stored it as numbers (read as their digits).
     """
 
     frame: gpd.GeoDataFrame
     source: InputFile
     projected: gpd.GeoDataFrame | None = None
     projection: str = ""
+    id_column: str = "district_id"
+    numeric_ids: bool = False
 
     @property
     def map_frame(self) -> gpd.GeoDataFrame:

@@ -195,14 +195,12 @@ def test_ids_are_nfc_text_and_stripped(tmp_path: Path) -> None:
 
 
 def test_whole_number_ids_are_read_as_digits_fractions_are_errors(tmp_path: Path) -> None:
-    from sitrep.ingest.geometry import NUMERIC_IDS_ATTR
-
     gdf = clean_polygons()
     gdf["district_id"] = [int(i) for i in gdf["district_id"]]
     districts, report = read_districts(write(gdf, tmp_path / "d.gpkg", layer="d"), settings())
     assert report.errors == ()
     assert districts.ids == ("1", "2", "3", "4", "5", "6")
-    assert districts.frame.attrs[NUMERIC_IDS_ATTR] == {"column": "district_id", "numeric": True}
+    assert (districts.id_column, districts.numeric_ids) == ("district_id", True)
     # padded to the width the table uses when the setting asks for it
     districts, report = read_districts(tmp_path / "d.gpkg", settings(id_zero_pad=3))
     assert districts.ids == tuple(IDS)

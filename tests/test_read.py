@@ -21,6 +21,7 @@ from ingest_fixtures import HEADER, IDS, WEEKS, changed, clean_rows, line_of, se
 
 from sitrep.errors import InputError
 from sitrep.ingest import read as read_mod
+from sitrep.ingest.findings import FindingCollector
 from sitrep.ingest.read import RULES, read_count_table
 from sitrep.model import Severity
 from sitrep.weeks import EpiWeek, WeekSystem
@@ -76,7 +77,8 @@ def test_clean_csv_types_every_column(clean: Path) -> None:
     assert f["line"].tolist() == list(range(2, 26))
     assert table.source.sha256 == hashlib.sha256(clean.read_bytes()).hexdigest()
     assert table.source.size_bytes == clean.stat().st_size
-    assert f.attrs["source_columns"]["week"] == "epi_week"
+    assert table.columns.week == "epi_week" and table.columns.district_id == "district_id"
+    assert not f.attrs  # the file's column names travel as a typed field, not in attrs
 
 
 def test_rule_ids_are_stable_kebab_case() -> None:
@@ -229,8 +231,6 @@ def test_xlsx_text_ids_read_like_csv(tmp_path: Path, clean: Path) -> None:
 def test_xlsx_whole_number_ids_are_read_as_digits_and_their_lines_kept(tmp_path: Path) -> None:
     import openpyxl
 
-    from sitrep.ingest.read import NUMERIC_ID_LINES_ATTR
-
     book = openpyxl.Workbook()
     sheet = book.active
     sheet.append(HEADER)
@@ -244,7 +244,7 @@ def test_xlsx_whole_number_ids_are_read_as_digits_and_their_lines_kept(tmp_path:
     assert report.errors == ()
     # the digits are kept as they are (never padded silently); the boundary check judges them
     assert {"1", "2"} <= set(table.frame["district_id"])
-    assert table.frame.attrs[NUMERIC_ID_LINES_ATTR] == (2, 9)
+    assert table.numeric_id_lines == (2, 9)
 
 
 def test_xlsx_ids_that_are_not_whole_numbers_are_errors_per_cell(tmp_path: Path) -> None:
@@ -314,8 +314,6 @@ def test_parquet_integer_ids_are_read_as_digits_fractions_are_errors(tmp_path: P
     import pyarrow as pa
     import pyarrow.parquet as pq
 
-    from sitrep.ingest.read import NUMERIC_ID_LINES_ATTR
-
     rows = clean_rows()
     data = {h: [r[k] for r in rows] for k, h in enumerate(HEADER)}
     data["district_id"] = [int(v) for v in data["district_id"]]
@@ -325,7 +323,7 @@ def test_parquet_integer_ids_are_read_as_digits_fractions_are_errors(tmp_path: P
     table, report = read(tmp_path / "t.pq")
     assert report.errors == ()
     assert set(table.frame["district_id"]) == {str(int(i)) for i in IDS}
-    assert table.frame.attrs[NUMERIC_ID_LINES_ATTR] == tuple(range(2, len(rows) + 2))
+    assert table.numeric_id_lines == tuple(range(2, len(rows) + 2))
     data["district_id"] = [
         float(v) + (0.5 if k == 3 else 0.0) for k, v in enumerate(data["district_id"])
     ]
@@ -676,7 +674,7 @@ def test_fast_and_exact_parsers_agree(tmp_path: Path) -> None:
     rows = changed(clean_rows(), "001", WEEKS[0], "district_name", '"Arden, upper"')
     text = write_csv(tmp_path / "q.csv", rows).read_text(encoding="utf-8")
     fast = read_mod._csv_fast(text.encode("utf-8"), text, ",")
-    exact = read_mod._csv_exact(text, ",", read_mod.FindingCollector("q.csv"))
+    exact = read_mod._csv_exact(text, ",", FindingCollector("q.csv"))
     assert fast is not None and exact is not None
     assert fast.header == exact.header
     assert (fast.lines == exact.lines).all()

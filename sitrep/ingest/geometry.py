@@ -20,12 +20,13 @@ import numpy as np
 
 from sitrep.config import InputSettings
 from sitrep.errors import InputError
-from sitrep.ingest.read import FindingCollector, line_list, pad_id
+from sitrep.ingest.findings import FindingCollector, line_list
+from sitrep.ingest.read import pad_id
+from sitrep.ingest.rules import Stage, descriptions
 from sitrep.model import Districts, InputFile, Severity, ValidationReport
 
 __all__ = [
     "GAP_SHARE",
-    "NUMERIC_IDS_ATTR",
     "REPAIR_AREA_TOLERANCE",
     "REPORT_FONTS",
     "RULES",
@@ -35,53 +36,8 @@ __all__ = [
     "read_districts",
 ]
 
-RULES: tuple[tuple[str, str], ...] = (
-    ("boundaries-too-large", "the boundary file is larger than input.max_input_mb"),
-    ("boundaries-format-unknown", "the extension is not .geojson/.json, .gpkg or .shp"),
-    ("boundaries-unreadable", "the file cannot be read as the declared format"),
-    ("boundaries-empty", "the layer holds no features"),
-    (
-        "layer-missing",
-        "the GeoPackage has no layer input.boundaries_layer (or several, none named)",
-    ),
-    ("crs-missing", "no CRS in the file (e.g. a shapefile without .prj) and none declared"),
-    ("crs-invalid", "input.boundaries_crs is not a CRS pyproj understands"),
-    ("crs-conflict", "the file's CRS differs from input.boundaries_crs"),
-    ("crs-coordinates-out-of-range", "coordinates outside lon/lat bounds in a geographic CRS"),
-    ("map-crs-invalid", "input.map_crs is not a projected CRS pyproj understands"),
-    (
-        "map-projection-failed",
-        "the boundaries cannot be projected to the CRS of the maps and distances",
-    ),
-    ("column-missing", "the id column is not in the layer"),
-    ("column-optional-missing", "the name column is not in the layer; ids are used (warning)"),
-    ("id-missing", "a feature has no district id"),
-    ("id-numeric", "an id stored as a number is not a whole number (error)"),
-    ("id-whitespace-stripped", "ids had surrounding spaces, removed (info)"),
-    ("id-zero-padded", "ids were padded with zeros to input.id_zero_pad digits (info)"),
-    ("id-duplicated", "two features carry the same district id"),
-    ("geometry-missing", "a district's geometry is null or empty"),
-    ("geometry-not-polygon", "a district's geometry is not a Polygon or MultiPolygon"),
-    ("geometry-invalid", "a district's geometry is invalid and cannot be repaired safely"),
-    ("geometry-repaired", "a district's invalid geometry was repaired with make_valid (warning)"),
-    (
-        "boundaries-outside-extent",
-        "the layer lies outside input.boundaries_extent (swapped axes or a wrong CRS)",
-    ),
-    (
-        "geometry-gap",
-        "a district touches no other district but lies within a sliver of one (warning)",
-    ),
-    (
-        "name-glyphs-missing",
-        "a district name has characters the report font cannot draw (warning)",
-    ),
-    ("reader-warning", "the underlying file reader emitted a warning (info)"),
-)
-"""Rule ids of this module with one-line descriptions (for the documentation)."""
-
-NUMERIC_IDS_ATTR = "numeric_ids"
-"""Key in ``Districts.frame.attrs``: ``{"column": id field, "numeric": stored as numbers}``."""
+RULES: tuple[tuple[str, str], ...] = descriptions(Stage.BOUNDARY_FILE)
+"""Rule ids of the boundary reader with one-line descriptions (from the registry)."""
 
 REPAIR_AREA_TOLERANCE = 0.01
 """A repair is safe when the area changes by at most this share (see :func:`read_districts`)."""
@@ -217,9 +173,10 @@ def read_districts(
     frame = _check_crs(frame, ext, settings, out)
     if frame is None:
         return None, out.report()
-    result = _check_features(frame, settings, out)
-    if result is None or out.has_errors:
+    checked = _check_features(frame, settings, out)
+    if checked is None or out.has_errors:
         return None, out.report()
+    result, numeric_ids = checked
     if not _check_extent(result, settings, out):
         return None, out.report()
     projection = _project(result, settings, out)
@@ -229,7 +186,14 @@ def read_districts(
     _check_gaps(result, out)
     _check_glyphs(result, settings, out)
     return (
-        Districts(frame=result, source=source, projected=projected, projection=note),
+        Districts(
+            frame=result,
+            source=source,
+            projected=projected,
+            projection=note,
+            id_column=settings.boundaries_id_column,
+            numeric_ids=numeric_ids,
+        ),
         out.report(),
     )
 
@@ -662,8 +626,7 @@ def _check_features(frame: Any, settings: InputSettings, out: FindingCollector) 
     )
     order = np.argsort(np.asarray(ids, dtype=str), kind="stable")
     result = result.iloc[order].reset_index(drop=True)
-    result.attrs[NUMERIC_IDS_ATTR] = {"column": id_col, "numeric": bool(numeric)}
-    return result
+    return result, bool(numeric)
 
 
 def _safe_repair(geom: Any) -> Any:

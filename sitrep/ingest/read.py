@@ -20,60 +20,22 @@ import unicodedata
 import warnings
 from collections.abc import Callable, Sequence
 from pathlib import Path
-from typing import Any
+from typing import Any, NamedTuple
 
 import numpy as np
 import pandas as pd
 
 from sitrep.config import ColumnMap, InputSettings
 from sitrep.errors import InputError
-from sitrep.model import CountTable, Finding, InputFile, Severity, ValidationReport
+from sitrep.ingest.findings import FindingCollector, line_list
+from sitrep.ingest.rules import Stage, descriptions
+from sitrep.model import CountTable, InputFile, Severity, SourceColumns, ValidationReport
 from sitrep.weeks import EpiWeek, WeekSystem
 
-__all__ = [
-    "NUMERIC_ID_LINES_ATTR",
-    "RULES",
-    "SOURCE_COLUMNS_ATTR",
-    "line_list",
-    "pad_id",
-    "FindingCollector",
-    "read_count_table",
-    "sort_findings",
-]
+__all__ = ["RULES", "pad_id", "read_count_table"]
 
-RULES: tuple[tuple[str, str], ...] = (
-    ("file-too-large", "the file is larger than input.max_input_mb (checked before parsing)"),
-    ("file-format-unknown", "the file extension is not .csv/.txt, .xlsx or .parquet/.pq"),
-    ("file-empty", "the file holds no bytes or only blank lines"),
-    ("file-header-only", "the file has a header but no data rows"),
-    ("file-encoding", "the bytes are not valid in the declared input.encoding"),
-    ("file-unparseable", "the file cannot be parsed as the declared format"),
-    ("sheet-missing", "the XLSX workbook has no worksheet named input.sheet"),
-    (
-        "sheet-elsewhere",
-        "the first worksheet lacks the columns another worksheet has (input.sheet)",
-    ),
-    ("row-field-count", "a CSV row has a different number of fields from the header"),
-    ("row-blank", "a blank row inside the table was skipped (info)"),
-    ("column-duplicated", "two header cells carry the same column name"),
-    ("column-missing", "a required mapped column is not in the header"),
-    ("column-optional-missing", "an optional mapped column (name, sites) is absent (warning)"),
-    ("week-columns-ambiguous", "the column map names no usable week column, or several"),
-    ("id-missing", "a district id cell is empty"),
-    ("id-numeric", "a district id stored as a number is not a whole number (error)"),
-    ("id-whitespace-stripped", "ids had surrounding spaces, removed (info, one per file)"),
-    ("id-zero-padded", "ids were padded with zeros to input.id_zero_pad digits (info)"),
-    ("cell-missing", "a required count cell is empty"),
-    ("cell-not-number", "a count or rate cell is not a plain number in the declared format"),
-    ("count-not-integer", "a count cell holds a fractional number"),
-    ("week-invalid", "a week cell is not a valid epi week in the declared system"),
-    ("week-date-weekday", "a week start/end date is not on the system's first/last weekday"),
-    ("reader-warning", "the underlying file reader emitted a warning (info)"),
-)
-"""Rule ids of this module with one-line descriptions (for the documentation)."""
-
-SOURCE_COLUMNS_ATTR = "source_columns"
-"""Key in ``CountTable.frame.attrs``: internal column name -> column name as in the file."""
+RULES: tuple[tuple[str, str], ...] = descriptions(Stage.TABLE_FILE)
+"""Rule ids of the table reader with one-line descriptions (from the registry)."""
 
 _CSV_EXT = {".csv", ".txt"}
 _XLSX_EXT = {".xlsx"}
@@ -83,8 +45,12 @@ _MB = 1_000_000
 _EXACT_FLOAT = 2**53  # every integer below this is exactly representable as a float
 _DIGITS = re.compile(r"^-?\d+$")
 
-NUMERIC_ID_LINES_ATTR = "numeric_id_lines"
-"""Key in ``CountTable.frame.attrs``: lines whose id cell was stored as a whole number (read as text)."""
+
+class BadWeek(NamedTuple):
+    """A week cell that cannot be read: the rule it breaks and the message."""
+
+    rule: str
+    message: str
 
 
 @dataclasses.dataclass(frozen=True)
@@ -120,50 +86,6 @@ class _Raw:
     """Column position -> boolean mask of cells stored as numbers (XLSX)."""
     numeric_columns: set[int] = dataclasses.field(default_factory=set)
     """Column positions whose whole storage type is numeric (Parquet)."""
-
-
-class FindingCollector:
-    """Accumulates the findings for one file (shared by the readers and the rules)."""
-
-    def __init__(self, file: str) -> None:
-        self.file = file
-        self.items: list[Finding] = []
-
-    def add(self, severity: Severity, rule: str, message: str, **where: Any) -> None:
-        self.items.append(Finding(severity, rule, message, file=self.file, **where))
-
-    def error(self, rule: str, message: str, **where: Any) -> None:
-        self.add(Severity.ERROR, rule, message, **where)
-
-    @property
-    def has_errors(self) -> bool:
-        return any(f.severity is Severity.ERROR for f in self.items)
-
-    def report(self) -> ValidationReport:
-        return ValidationReport(sort_findings(self.items))
-
-
-def sort_findings(findings: Sequence[Finding]) -> tuple[Finding, ...]:
-    """Return findings in the project's stable order: file, line, column, rule.
-
-    File-level findings (no line) come before line findings of the same file;
-    district id and value break remaining ties so the order never depends on
-    the order in which rules ran.
-    """
-    return tuple(
-        sorted(
-            findings,
-            key=lambda f: (
-                f.file,
-                -1 if f.line is None else f.line,
-                f.column or "",
-                f.rule,
-                f.district_id or "",
-                f.value or "",
-                f.message,
-            ),
-        )
-    )
 
 
 def read_count_table(
@@ -209,8 +131,8 @@ def read_count_table(
         sorted by week then district id; its ``week`` column is an ordered
         categorical of :class:`~sitrep.weeks.EpiWeek`; a supplied rate column
         is added as ``rate_percent`` (converted to percent from
-        ``columns.rate_scale``); ``frame.attrs["source_columns"]`` maps
-        internal column names to the names in the file.
+        ``columns.rate_scale``); ``CountTable.columns`` gives the names of
+        the columns in the file.
 
     Raises
     ------
@@ -224,7 +146,7 @@ def read_count_table(
     For XLSX they are worksheet row numbers; for Parquet, row index + 2 (the
     line the row would have in a CSV export). Numeric id cells (XLSX numbers,
     Parquet numeric columns) holding whole numbers are read as their digits
-    and their lines recorded in ``frame.attrs["numeric_id_lines"]``, so that
+    and their lines recorded in ``CountTable.numeric_id_lines``, so that
     the boundary check can tell a lost leading zero (``id-leading-zeros``)
     from a match; any other number is an ``id-numeric`` error. With
     ``settings.id_zero_pad = K``, all-digit ids shorter than K digits are
@@ -279,10 +201,17 @@ def read_count_table(
         )
     if raw is None:
         return None, out.report()
-    frame = _type_table(raw, settings, system, out)
-    if frame is None or out.has_errors:
+    typed = _type_table(raw, settings, system, out)
+    if typed is None or out.has_errors:
         return None, out.report()
-    return CountTable(frame=frame, system=system, source=source), out.report()
+    table = CountTable(
+        frame=typed.frame,
+        system=system,
+        source=source,
+        columns=typed.columns,
+        numeric_id_lines=typed.numeric_id_lines,
+    )
+    return table, out.report()
 
 
 # --------------------------------------------------------------------------- readers
@@ -720,9 +649,18 @@ def _apply_unique(
     return col.codes, [parse(str(u)) for u in col.uniques], col.uniques
 
 
+@dataclasses.dataclass(frozen=True)
+class _Typed:
+    """The typed frame and what findings need to know about the file's columns."""
+
+    frame: pd.DataFrame
+    columns: SourceColumns
+    numeric_id_lines: tuple[int, ...]
+
+
 def _type_table(
     raw: _Raw, settings: InputSettings, system: WeekSystem, out: FindingCollector
-) -> pd.DataFrame | None:
+) -> _Typed | None:
     cmap = settings.columns
     names = [_nfc(h).strip() for h in raw.header]
     # duplicated header cells (blank names are unmapped and ignored)
@@ -971,15 +909,7 @@ def _type_table(
     if rate is not None and pos_rate is not None:
         frame["rate_percent"] = rate[order]
         source_columns["rate_percent"] = col_name(pos_rate)
-    frame.attrs[SOURCE_COLUMNS_ATTR] = source_columns
-    frame.attrs[NUMERIC_ID_LINES_ATTR] = numeric_id_lines
-    return frame
-
-
-def line_list(lines: Sequence[int], limit: int = 20) -> str:
-    """``2, 5, 9`` or ``2, 5, 9, ... and 40 more`` (for messages)."""
-    shown = ", ".join(str(x) for x in lines[:limit])
-    return shown + (f" and {len(lines) - limit} more" if len(lines) > limit else "")
+    return _Typed(frame, SourceColumns(**source_columns), numeric_id_lines)
 
 
 def pad_id(ident: str, width: int | None) -> str:
@@ -1085,11 +1015,11 @@ def _type_weeks(
     lines = raw.lines
     sys_name = system.value.upper()
 
-    def parse_label(t: str) -> EpiWeek | tuple[str, str]:
+    def parse_label(t: str) -> EpiWeek | BadWeek:
         try:
             return EpiWeek.parse(t.strip(), system)
         except ValueError as exc:
-            return ("week-invalid", str(exc))
+            return BadWeek("week-invalid", str(exc))
 
     if kind == "label":
         pos = pos_week[0]
@@ -1117,51 +1047,52 @@ def _type_weeks(
         assert pos is not None
         texts = raw.columns[pos]
 
-    def parse_year_week(t: str) -> EpiWeek | tuple[str, str]:
+    def parse_year_week(t: str) -> EpiWeek | BadWeek:
         y, w = t.split("|")
         if not (re.fullmatch(r"\d{4}", y) and re.fullmatch(r"\d{1,2}", w)):
-            return (
+            return BadWeek(
                 "week-invalid",
                 f"expected a 4-digit year and a week number, got year {y!r} and week {w!r}",
             )
         try:
             return EpiWeek(int(y), int(w), system)
         except ValueError as exc:
-            return ("week-invalid", str(exc))
+            return BadWeek("week-invalid", str(exc))
 
     first_day = system.first_weekday
     last_day = (first_day + 6) % 7
     day_names = ["Monday", "Tuesday", "Wednesday", "Thursday", "Friday", "Saturday", "Sunday"]
 
-    def parse_date(t: str) -> EpiWeek | tuple[str, str]:
+    def parse_date(t: str) -> EpiWeek | BadWeek:
         t = t.strip()
         if _DATE.match(t):
             try:
                 day = dt.date.fromisoformat(t)
             except ValueError as exc:
-                return ("week-invalid", f"expected a valid date, got {t!r} ({exc})")
+                return BadWeek("week-invalid", f"expected a valid date, got {t!r} ({exc})")
         elif date_format:
             try:
                 day = dt.datetime.strptime(t, date_format).date()
             except ValueError:
-                return (
+                return BadWeek(
                     "week-invalid",
                     f"expected a date written as input.date_format = {date_format!r} (or ISO "
                     f"YYYY-MM-DD), got {t!r}; check the declared format against the file",
                 )
         else:
-            return (
+            return BadWeek(
                 "week-invalid",
                 f"expected an ISO date YYYY-MM-DD, got {t!r}; if the file writes dates another "
                 "way, declare it with input.date_format (e.g. '%m/%d/%Y' for 10/07/2023)",
             )
         want = first_day if kind == "start" else last_day
         if day.weekday() != want:
-            return "week-date-weekday", (
+            return BadWeek(
+                "week-date-weekday",
                 f"expected a week {'start' if kind == 'start' else 'end'} date on a "
                 f"{day_names[want]} ({sys_name} weeks run {day_names[first_day]} to "
                 f"{day_names[last_day]}), got {t} which is a {day_names[day.weekday()]}; "
-                "check input.columns and weeks.system"
+                "check input.columns and weeks.system",
             )
         return EpiWeek.from_date(day, system)
 
