@@ -36,7 +36,7 @@ from sitrep.analysis.seasonal import (
     same_week_past_seasons,
     season_onset,
 )
-from sitrep.analysis.seasonal.mem import _smooth_local_linear
+from sitrep.analysis.seasonal.period import _smooth_local_linear
 
 TOL = 1e-6
 

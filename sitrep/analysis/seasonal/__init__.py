@@ -15,8 +15,8 @@ Modules
 - :mod:`.baseline` (docs/methods.md 7.1): :func:`baseline_from_nonepidemic` (the declared rule),
   :func:`baseline_from_weeks` (any week selection), and the two laboratory rules
   :func:`non_influenza_weeks_by_share` and :func:`non_influenza_weeks_by_positivity`.
-- :mod:`.mem`, the Moving Epidemic Method (docs/methods.md 7.2): :func:`map_curve`,
-  :func:`epidemic_period`, :func:`mem_thresholds`.
+- the Moving Epidemic Method (docs/methods.md 7.2): :mod:`.period` (:func:`map_curve`,
+  :func:`epidemic_period`) and :mod:`.mem` (:func:`mem_thresholds`).
 - :mod:`.series`, what they share: :func:`interpolate_missing`, :func:`round_half_up`.
 - :mod:`.prospective`: :func:`season_onset`, :func:`intensity_level`,
   :func:`same_week_past_seasons`.
@@ -34,20 +34,22 @@ from sitrep.analysis.seasonal.baseline import (
     non_influenza_weeks_by_share,
 )
 from sitrep.analysis.seasonal.mem import (
-    DEFAULT_DELTA,
     DEFAULT_INTENSITY_LEVELS,
     DEFAULT_THRESHOLD_LEVEL,
     MAX_MEM_SEASONS,
     MIN_MEM_SEASONS,
     TARGET_POOLED_VALUES,
-    EpidemicPeriod,
     IntervalForm,
-    MapSlope,
     MemThresholds,
     default_n_per_season,
+    mem_thresholds,
+)
+from sitrep.analysis.seasonal.period import (
+    DEFAULT_DELTA,
+    EpidemicPeriod,
+    MapSlope,
     epidemic_period,
     map_curve,
-    mem_thresholds,
 )
 from sitrep.analysis.seasonal.prospective import (
     IntensityLevel,

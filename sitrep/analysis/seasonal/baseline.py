@@ -9,7 +9,7 @@ from dataclasses import dataclass
 import numpy as np
 import numpy.typing as npt
 
-from sitrep.analysis.seasonal.mem import EpidemicPeriod
+from sitrep.analysis.seasonal.period import EpidemicPeriod
 from sitrep.analysis.seasonal.series import (
     BoolArray,
     FloatArray,
