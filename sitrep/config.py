@@ -24,6 +24,7 @@ __all__ = [
     "DeliverySettings",
     "EmailSettings",
     "InputSettings",
+    "NowcastSettings",
     "OutputSettings",
     "ReportSettings",
     "SeasonalSettings",
@@ -94,6 +95,9 @@ class InputSettings:
     """The table holds one week only (true) or the season to date (false); unset: one week when
     last week's file (prior_table) holds one week, else season to date."""
     max_input_mb: float = 200.0
+    past_extracts: Path | None = None
+    """Folder of earlier weekly extracts as they were received (files matching ``inbox_pattern``,
+    read like ``table``), used with the archived ones for the nowcast; unset: the archive only."""
     columns: ColumnMap = dataclasses.field(default_factory=ColumnMap)
 
 
@@ -169,6 +173,27 @@ class SeasonalSettings:
     """Last calendar week of each past season used for the epidemic thresholds (0: the whole season)."""
     onset_weeks: int = 3
     aberration_sd_floor_pp: float = 0.2
+
+
+@dataclasses.dataclass(frozen=True)
+class NowcastSettings:
+    """Correction of the latest weeks for late reports (docs/methods.md section 12)."""
+
+    enabled: bool = True
+    weeks: int = 4
+    """How many of the latest weeks are nowcast (this week and the weeks before it)."""
+    max_delay: int = 4
+    """Delay in weeks after which a week's counts are taken as final."""
+    window_weeks: int = 26
+    """Development factors come from the weeks of this many latest weeks."""
+    min_extracts: int = 10
+    """Fewest weekly extracts in the window (this week's included) for a nowcast; else skipped."""
+    district_min_weeks: int = 12
+    """A district with this many weeks at every delay gets its own factors; others use the pooled."""
+    level: float = 0.90
+    """Coverage of the prediction interval."""
+    draws: int = 2000
+    """Simulated draws behind the interval (seeded by analysis.seed)."""
 
 
 @dataclasses.dataclass(frozen=True)
@@ -256,6 +281,7 @@ class Config:
     validation: ValidationSettings = dataclasses.field(default_factory=ValidationSettings)
     analysis: AnalysisSettings = dataclasses.field(default_factory=AnalysisSettings)
     seasonal: SeasonalSettings = dataclasses.field(default_factory=SeasonalSettings)
+    nowcast: NowcastSettings = dataclasses.field(default_factory=NowcastSettings)
     output: OutputSettings = dataclasses.field(default_factory=OutputSettings)
     email: EmailSettings = dataclasses.field(default_factory=EmailSettings)
     delivery: DeliverySettings = dataclasses.field(default_factory=DeliverySettings)
@@ -467,6 +493,7 @@ def _check_ranges(c: Config) -> None:
     for ok, message, value in checks:
         if not ok:
             raise ConfigError(f"{message}, got {value!r}")
+    _check_nowcast(c.nowcast)
     if c.input.date_format is not None:
         import datetime as dt
 
@@ -501,3 +528,38 @@ def _check_ranges(c: Config) -> None:
             EpiWeek.parse(c.weeks.report_week, WeekSystem(c.weeks.system))
         except ValueError as exc:
             raise ConfigError(f"weeks.report_week: {exc}") from exc
+
+
+def _check_nowcast(n: NowcastSettings) -> None:
+    """Refuse nowcast settings that cannot give a nowcast, naming the key and the bound."""
+    checks = [
+        (1 <= n.max_delay <= 26, "nowcast.max_delay must be 1..26 weeks", n.max_delay),
+        (
+            1 <= n.weeks <= n.max_delay,
+            f"nowcast.weeks must be 1..nowcast.max_delay ({n.max_delay}): a week older than the "
+            "longest delay is final",
+            n.weeks,
+        ),
+        (
+            n.window_weeks >= n.max_delay + 2,
+            f"nowcast.window_weeks must be at least nowcast.max_delay + 2 ({n.max_delay + 2}) "
+            "so that every delay is seen twice",
+            n.window_weeks,
+        ),
+        (
+            n.max_delay + 2 <= n.min_extracts <= n.window_weeks,
+            f"nowcast.min_extracts must be from nowcast.max_delay + 2 ({n.max_delay + 2}) to "
+            f"nowcast.window_weeks ({n.window_weeks})",
+            n.min_extracts,
+        ),
+        (
+            n.district_min_weeks >= 3,
+            "nowcast.district_min_weeks must be at least 3",
+            n.district_min_weeks,
+        ),
+        (0.5 <= n.level < 1, "nowcast.level must be at least 0.5 and below 1", n.level),
+        (n.draws >= 200, "nowcast.draws must be at least 200", n.draws),
+    ]
+    for ok, message, value in checks:
+        if not ok:
+            raise ConfigError(f"{message}, got {value!r}")

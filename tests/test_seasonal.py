@@ -1,6 +1,6 @@
 """Tests of sitrep.analysis.seasonal: baseline, MEM thresholds, onset, intensity, same week.
 
-Sources of check values (tags as in /work/shared/docs/methods.md):
+Sources of check values (tags as in docs/methods.md):
 - docs/methods.md 7.1 worked example [HAND/LIB]: baseline and onset numbers.
 - docs/methods.md 7.2 worked example [HAND/own code]: MEM numbers. These are regression values of
   our own computation, not an outside oracle (no published MEM check values were available).
@@ -22,7 +22,6 @@ from sitrep.analysis.seasonal import (
     MapSlope,
     MemThresholds,
     NonInfluenzaRule,
-    _smooth_local_linear,
     baseline_from_nonepidemic,
     baseline_from_weeks,
     default_n_per_season,
@@ -37,6 +36,7 @@ from sitrep.analysis.seasonal import (
     same_week_past_seasons,
     season_onset,
 )
+from sitrep.analysis.seasonal.period import _smooth_local_linear
 
 TOL = 1e-6
 

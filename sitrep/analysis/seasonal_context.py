@@ -111,6 +111,65 @@ def seasonal_context(
     rows = rows[rows["week"] <= week]
     pooled = pooled_by_week(rows)
     season_label, season_week = season_of(week, season_start_week)
+    by_season, past, windowed = _season_arrays(pooled, season_label, season_start_week, settings)
+    current_values = by_season.get(season_label, {})
+    curve = tuple((i, current_values[i]) for i in sorted(current_values) if i <= season_week)
+    this_pct = current_values.get(season_week, math.nan)
+    mem, band = _thresholds(past, windowed, settings)
+    available = bool(mem and mem.available)
+    reason = (
+        mem.reason
+        if mem is not None
+        else ("Epidemic thresholds are not available: the history holds no past season.")
+    )
+    base = _baseline(past, settings)
+    onset = None
+    if available and mem is not None and mem.epidemic_threshold is not None:
+        series = np.array(
+            [current_values.get(i, np.nan) for i in range(1, season_week + 1)], dtype=float
+        )
+        start = seasonal.season_onset(series, mem.epidemic_threshold, k=settings.onset_weeks)
+        if start is not None:
+            onset = week - (season_week - start)
+    intensity = (
+        seasonal.intensity_level(this_pct, mem).value if mem is not None else "not available"
+    )
+    shown = mem if available else None
+    return SeasonalContext(
+        season_label=season_label,
+        season_week=season_week,
+        current_curve=curve,
+        past_curves=tuple((k, tuple(float(x) for x in v)) for k, v in past.items()),
+        baseline=base.value,
+        baseline_note=base.note,
+        epidemic_threshold=shown.epidemic_threshold if shown else None,
+        post_threshold=shown.post_epidemic_threshold if shown else None,
+        medium=shown.medium_threshold if shown else None,
+        high=shown.high_threshold if shown else None,
+        very_high=shown.very_high_threshold if shown else None,
+        thresholds_available=available,
+        thresholds_reason=reason,
+        intensity=intensity,
+        onset_week=onset,
+        same_week_past=tuple(seasonal.same_week_past_seasons(past, season_week) if past else ()),
+        season_peak=_season_peak(curve, week, season_week),
+        district_flags=_district_flags(rows, week, settings),
+        method_note=_method_note(settings, mem, base.note),
+        mem=mem,
+        window_end_week=settings.mem_window_end_week,
+        threshold_band=band,
+        baseline_seasons_used=base.seasons_used,
+        baseline_weeks=base.weeks,
+        previous_visits=tuple(
+            int(v) for w, v in zip(pooled["week"], pooled["total_visits"], strict=True) if w < week
+        )[-8:],
+    )
+
+
+def _season_arrays(
+    pooled: pd.DataFrame, season_label: str, season_start_week: int, settings: SeasonalSettings
+) -> tuple[dict[str, dict[int, float]], dict[str, FloatArray], dict[str, FloatArray]]:
+    """Pooled ILI% by season and season week; the past seasons as arrays, whole and windowed."""
     by_season: dict[str, dict[int, float]] = {}
     calendar: dict[str, dict[int, int]] = {}
     for w, pct in zip(pooled["week"], pooled["pct"], strict=True):
@@ -128,118 +187,76 @@ def seasonal_context(
         k: v[: _window_length(calendar[k], season_start_week, settings.mem_window_end_week, len(v))]
         for k, v in past.items()
     }
-    current_values = by_season.get(season_label, {})
-    curve = tuple((i, current_values[i]) for i in sorted(current_values) if i <= season_week)
-    this_pct = current_values.get(season_week, math.nan)
+    return by_season, past, windowed
 
-    mem = (
-        seasonal.mem_thresholds(
-            windowed,
-            delta=settings.mem_delta,
-            form=settings.mem_form,
-            max_seasons=settings.mem_max_seasons,
-        )
-        if past
-        else None
-    )
-    band = None
-    if (
-        mem is not None
-        and mem.available
-        and mem.epidemic_threshold is not None
-        and settings.mem_window_end_week
-    ):
-        whole = seasonal.mem_thresholds(
-            past,
-            delta=settings.mem_delta,
-            form=settings.mem_form,
-            max_seasons=settings.mem_max_seasons,
-        )
-        if whole.available and whole.epidemic_threshold is not None:
-            pair = sorted((float(mem.epidemic_threshold), float(whole.epidemic_threshold)))
-            if pair[1] - pair[0] > 1e-9:
-                band = (pair[0], pair[1])
-    available = bool(mem and mem.available)
-    reason = (
-        mem.reason
-        if mem is not None
-        else ("Epidemic thresholds are not available: the history holds no past season.")
-    )
 
-    baseline_value: float | None = None
-    baseline_note = ""
-    baseline_seasons_used = baseline_weeks = 0
-    if past:
-        periods = [
-            seasonal.epidemic_period(v, delta=settings.mem_delta, label=k) for k, v in past.items()
-        ]
-        base = seasonal.baseline_from_nonepidemic(
-            past,
-            periods,
-            sd_multiplier=settings.baseline_sd,
-            n_seasons=settings.baseline_seasons,
-        )
-        if base.available and base.value is not None:
-            baseline_value = float(base.value)
-            baseline_seasons_used, baseline_weeks = len(base.seasons_used), int(base.n_weeks)
-            baseline_note = (
-                f"mean + {settings.baseline_sd:g} SD of ILI% in the weeks outside each of the last "
-                f"{len(base.seasons_used)} seasons' epidemic periods ({base.n_weeks} weeks)"
-            )
-        else:
-            baseline_note = base.reason
-    else:
-        baseline_note = "not available: the history holds no past season"
-
-    onset = None
-    if available and mem is not None and mem.epidemic_threshold is not None:
-        series = np.array(
-            [current_values.get(i, np.nan) for i in range(1, season_week + 1)], dtype=float
-        )
-        start = seasonal.season_onset(series, mem.epidemic_threshold, k=settings.onset_weeks)
-        if start is not None:
-            onset = week - (season_week - start)
-    intensity = (
-        seasonal.intensity_level(this_pct, mem).value if mem is not None else "not available"
+def _thresholds(
+    past: dict[str, FloatArray], windowed: dict[str, FloatArray], settings: SeasonalSettings
+) -> tuple[seasonal.MemThresholds | None, tuple[float, float] | None]:
+    """MEM thresholds on the season window, and the band between them and the whole season's."""
+    if not past:
+        return None, None
+    mem = seasonal.mem_thresholds(
+        windowed,
+        delta=settings.mem_delta,
+        form=settings.mem_form,
+        max_seasons=settings.mem_max_seasons,
     )
-    same_week = seasonal.same_week_past_seasons(past, season_week) if past else ()
-    peak = None
-    if curve:
-        best = max(curve, key=lambda item: (item[1] if math.isfinite(item[1]) else -1.0, -item[0]))
-        if math.isfinite(best[1]):
-            peak = (week - (season_week - best[0]), best[1])
-
-    flags = _district_flags(rows, week, settings)
-    note = _method_note(settings, mem, baseline_note)
-    return SeasonalContext(
-        season_label=season_label,
-        season_week=season_week,
-        current_curve=curve,
-        past_curves=tuple((k, tuple(float(x) for x in v)) for k, v in past.items()),
-        baseline=baseline_value,
-        baseline_note=baseline_note,
-        epidemic_threshold=mem.epidemic_threshold if available and mem else None,
-        post_threshold=mem.post_epidemic_threshold if available and mem else None,
-        medium=mem.medium_threshold if available and mem else None,
-        high=mem.high_threshold if available and mem else None,
-        very_high=mem.very_high_threshold if available and mem else None,
-        thresholds_available=available,
-        thresholds_reason=reason,
-        intensity=intensity,
-        onset_week=onset,
-        same_week_past=tuple(same_week),
-        season_peak=peak,
-        district_flags=flags,
-        method_note=note,
-        mem=mem,
-        window_end_week=settings.mem_window_end_week,
-        threshold_band=band,
-        baseline_seasons_used=baseline_seasons_used,
-        baseline_weeks=baseline_weeks,
-        previous_visits=tuple(
-            int(v) for w, v in zip(pooled["week"], pooled["total_visits"], strict=True) if w < week
-        )[-8:],
+    if not (mem.available and mem.epidemic_threshold is not None and settings.mem_window_end_week):
+        return mem, None
+    whole = seasonal.mem_thresholds(
+        past,
+        delta=settings.mem_delta,
+        form=settings.mem_form,
+        max_seasons=settings.mem_max_seasons,
     )
+    if whole.available and whole.epidemic_threshold is not None:
+        pair = sorted((float(mem.epidemic_threshold), float(whole.epidemic_threshold)))
+        if pair[1] - pair[0] > 1e-9:
+            return mem, (pair[0], pair[1])
+    return mem, None
+
+
+@dataclasses.dataclass(frozen=True)
+class _BaselineNote:
+    value: float | None
+    note: str
+    seasons_used: int = 0
+    weeks: int = 0
+
+
+def _baseline(past: dict[str, FloatArray], settings: SeasonalSettings) -> _BaselineNote:
+    """The seasonal baseline outside the past seasons' epidemic periods, with its methods note."""
+    if not past:
+        return _BaselineNote(None, "not available: the history holds no past season")
+    periods = [
+        seasonal.epidemic_period(v, delta=settings.mem_delta, label=k) for k, v in past.items()
+    ]
+    base = seasonal.baseline_from_nonepidemic(
+        past,
+        periods,
+        sd_multiplier=settings.baseline_sd,
+        n_seasons=settings.baseline_seasons,
+    )
+    if not (base.available and base.value is not None):
+        return _BaselineNote(None, base.reason)
+    note = (
+        f"mean + {settings.baseline_sd:g} SD of ILI% in the weeks outside each of the last "
+        f"{len(base.seasons_used)} seasons' epidemic periods ({base.n_weeks} weeks)"
+    )
+    return _BaselineNote(float(base.value), note, len(base.seasons_used), int(base.n_weeks))
+
+
+def _season_peak(
+    curve: tuple[tuple[int, float], ...], week: EpiWeek, season_week: int
+) -> tuple[EpiWeek, float] | None:
+    """The week and ILI% of the season's highest week so far (the earliest on a tie)."""
+    if not curve:
+        return None
+    best = max(curve, key=lambda item: (item[1] if math.isfinite(item[1]) else -1.0, -item[0]))
+    if not math.isfinite(best[1]):
+        return None
+    return (week - (season_week - best[0]), best[1])
 
 
 def _window_length(calendar: dict[int, int], start: int, end: int, length: int) -> int:

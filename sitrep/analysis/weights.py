@@ -170,6 +170,44 @@ def build_graph(
     function emits no warning. An island is never given a p-value by
     :mod:`sitrep.analysis.clusters`.
     """
+    ids = _checked_ids(frame, kind, k, link_islands_k)
+    indexed = frame.set_axis(list(ids), axis=0)
+    notes: list[str] = []
+    if metric is not None:
+        if len(metric) != len(ids):
+            raise AnalysisError(
+                f"the projected districts have {len(metric)} rows for {len(ids)} districts"
+            )
+        metric = metric.set_axis(list(ids), axis=0)
+    elif (
+        (kind == "knn" or link_islands_k > 0) and frame.crs is not None and frame.crs.is_geographic
+    ):
+        metric, note = _projected(indexed)
+        notes.append(note)
+    else:
+        metric = indexed
+    neighbours = _neighbours_of(_libpysal_graph(indexed, metric, kind, k), ids)
+    islands = tuple(sorted(i for i in ids if not neighbours[i]))
+    linked: list[tuple[str, tuple[str, ...]]] = []
+    if islands and link_islands_k > 0:
+        neighbours, linked = _link_islands(neighbours, islands, metric, link_islands_k)
+        notes.append(
+            f"{len(islands)} district(s) without a {kind} neighbour were linked to their "
+            f"{link_islands_k} nearest district(s): "
+            + "; ".join(f"{i} -> {', '.join(t)}" for i, t in linked)
+        )
+    elif islands:
+        notes.append(
+            f"{len(islands)} district(s) have no {kind} neighbour and are not tested for "
+            f"clusters: {', '.join(islands)}"
+        )
+    return _assemble(ids, neighbours, kind, islands, tuple(linked), (), tuple(notes))
+
+
+def _checked_ids(
+    frame: gpd.GeoDataFrame, kind: str, k: int, link_islands_k: int
+) -> tuple[str, ...]:
+    """The district ids in row order, after checking the settings and the frame can build a graph."""
     if kind not in _KINDS:
         raise AnalysisError(
             f"weights kind must be one of {', '.join(_KINDS)}, got {kind!r}; "
@@ -190,8 +228,7 @@ def build_graph(
         raise AnalysisError(
             f"district ids must be unique to build neighbours, got duplicates {dupes}"
         )
-    geoms = frame.geometry
-    null = [ids[j] for j in np.flatnonzero(geoms.isna().to_numpy())]
+    null = [ids[j] for j in np.flatnonzero(frame.geometry.isna().to_numpy())]
     if null:
         raise AnalysisError(
             f"district(s) {null} have no geometry; fix the boundary file before building neighbours"
@@ -201,22 +238,13 @@ def build_graph(
         raise AnalysisError(
             f"knn needs 1 <= k <= n - 1 = {n - 1} districts, got k={k}; lower analysis.knn_k"
         )
+    return ids
 
-    indexed = frame.set_axis(list(ids), axis=0)
-    notes: list[str] = []
-    if metric is not None:
-        if len(metric) != n:
-            raise AnalysisError(
-                f"the projected districts have {len(metric)} rows for {n} districts"
-            )
-        metric = metric.set_axis(list(ids), axis=0)
-    elif (
-        (kind == "knn" or link_islands_k > 0) and frame.crs is not None and frame.crs.is_geographic
-    ):
-        metric, note = _projected(indexed)
-        notes.append(note)
-    else:
-        metric = indexed
+
+def _libpysal_graph(
+    indexed: gpd.GeoDataFrame, metric: gpd.GeoDataFrame, kind: str, k: int
+) -> Graph:
+    """libpysal's contiguity graph of ``indexed`` or knn graph of ``metric``, warnings caught."""
     from libpysal.graph import Graph
 
     with warnings.catch_warnings():
@@ -225,36 +253,28 @@ def build_graph(
         warnings.filterwarnings("ignore", message=r".*disconnected.*", category=UserWarning)
         try:
             if kind == "knn":
-                points = metric.geometry.representative_point()
-                raw = Graph.build_knn(points, k=k)
-            else:
-                raw = Graph.build_contiguity(indexed.geometry, rook=(kind == "rook"))
+                return Graph.build_knn(metric.geometry.representative_point(), k=k)
+            return Graph.build_contiguity(indexed.geometry, rook=(kind == "rook"))
         except (ValueError, TypeError, AttributeError) as exc:
             raise AnalysisError(f"could not build {kind} neighbours: {exc}") from exc
 
-    neighbours = _neighbours_of(raw, ids)
-    islands = tuple(sorted(i for i in ids if not neighbours[i]))
+
+def _link_islands(
+    neighbours: dict[str, tuple[str, ...]],
+    islands: tuple[str, ...],
+    metric: gpd.GeoDataFrame,
+    link_islands_k: int,
+) -> tuple[dict[str, tuple[str, ...]], list[tuple[str, tuple[str, ...]]]]:
+    """Each island linked both ways to its nearest districts; the new neighbours and the links."""
+    sets = {i: set(nb) for i, nb in neighbours.items()}
     linked: list[tuple[str, tuple[str, ...]]] = []
-    if islands and link_islands_k > 0:
-        sets = {i: set(neighbours[i]) for i in ids}
-        for island in islands:
-            targets = _nearest(metric, island, link_islands_k)
-            linked.append((island, targets))
-            for t in targets:
-                sets[island].add(t)
-                sets[t].add(island)
-        neighbours = {i: tuple(sorted(sets[i])) for i in ids}
-        notes.append(
-            f"{len(islands)} district(s) without a {kind} neighbour were linked to their "
-            f"{link_islands_k} nearest district(s): "
-            + "; ".join(f"{i} -> {', '.join(t)}" for i, t in linked)
-        )
-    elif islands:
-        notes.append(
-            f"{len(islands)} district(s) have no {kind} neighbour and are not tested for "
-            f"clusters: {', '.join(islands)}"
-        )
-    return _assemble(ids, neighbours, kind, islands, tuple(linked), (), tuple(notes))
+    for island in islands:
+        targets = _nearest(metric, island, link_islands_k)
+        linked.append((island, targets))
+        for t in targets:
+            sets[island].add(t)
+            sets[t].add(island)
+    return {i: tuple(sorted(sets[i])) for i in neighbours}, linked
 
 
 def graph_from_neighbours(
