@@ -20,7 +20,7 @@ from hypothesis import strategies as st
 from ingest_fixtures import HEADER, IDS, WEEKS, changed, clean_rows, line_of, settings, write_csv
 
 from sitrep.errors import InputError
-from sitrep.ingest import read as read_mod
+from sitrep.ingest import raw_table as read_mod
 from sitrep.ingest.findings import FindingCollector
 from sitrep.ingest.read import RULES, read_count_table
 from sitrep.model import Severity

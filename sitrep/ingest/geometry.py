@@ -21,7 +21,7 @@ import numpy as np
 from sitrep.config import InputSettings
 from sitrep.errors import InputError
 from sitrep.ingest.findings import FindingCollector, line_list
-from sitrep.ingest.read import pad_id
+from sitrep.ingest.id_cells import pad_id
 from sitrep.ingest.rules import Stage, descriptions
 from sitrep.model import Districts, InputFile, Severity, ValidationReport
 
