@@ -274,83 +274,82 @@ def read_xlsx(data: bytes, settings: InputSettings, out: FindingCollector) -> Ra
         )
         return None
     try:
-        if settings.sheet is not None and settings.sheet not in book.sheetnames:
-            out.error(
-                "sheet-missing",
-                f"expected a worksheet named {settings.sheet!r} (input.sheet), got sheets "
-                f"{', '.join(map(repr, book.sheetnames))}; set input.sheet to one of these",
-                value=settings.sheet,
-            )
-            return None
-        sheet = book[settings.sheet] if settings.sheet is not None else book.worksheets[0]
-        if settings.sheet is None and len(book.worksheets) > 1:
-            cmap = settings.columns
-            wanted = [
-                nfc(c).strip() for c in (cmap.district_id, cmap.ili_visits, cmap.total_visits)
-            ]
-            if not set(wanted) <= set(_sheet_header(sheet)):
-                other = next(
-                    (
-                        ws.title
-                        for ws in book.worksheets[1:]
-                        if set(wanted) <= set(_sheet_header(ws))
-                    ),
-                    None,
-                )
-                if other is not None:
-                    out.error(
-                        "sheet-elsewhere",
-                        f"the first worksheet {sheet.title!r} lacks the configured columns "
-                        f"({', '.join(map(repr, wanted))}) but worksheet {other!r} has them; set "
-                        f"input.sheet = {other!r} to read it (sitrep reads the first worksheet "
-                        "unless input.sheet names another)",
-                        value=other,
-                    )
-                    return None
-        id_name = nfc(settings.columns.district_id)
-        header: list[str] | None = None
-        id_pos: int | None = None
-        cols: list[list[str]] = []
-        numeric_id: list[bool] = []
-        lines: list[int] = []
-        for number, values in enumerate(sheet.iter_rows(values_only=True), start=1):
-            cells = list(values)
-            if header is None:
-                if not any(v is not None and str(v).strip() for v in cells):
-                    continue
-                while cells and (cells[-1] is None or str(cells[-1]).strip() == ""):
-                    cells.pop()
-                header = ["" if v is None else str(v) for v in cells]
-                names = [nfc(h).strip() for h in header]
-                id_pos = names.index(id_name) if id_name in names else None
-                cols = [[] for _ in header]
-                continue
-            cells = (cells + [None] * len(header))[: len(header)]
-            for i, v in enumerate(cells):
-                if v is None:
-                    text = ""
-                elif isinstance(v, (dt.datetime, dt.date)):
-                    text = (v.date() if isinstance(v, dt.datetime) else v).isoformat()
-                elif isinstance(v, (int, float)) and not isinstance(v, bool):
-                    text = _number_text(v, settings.decimal)
-                else:
-                    text = str(v)
-                cols[i].append(text)
-            numeric_id.append(
-                id_pos is not None
-                and isinstance(cells[id_pos], (int, float))
-                and not isinstance(cells[id_pos], bool)
-            )
-            lines.append(number)
+        sheet = _choose_sheet(book, settings, out)
+        raw = None if sheet is None else _sheet_rows(sheet, settings)
     finally:
         book.close()
-    if header is None:
+    if sheet is not None and raw is None:
         out.error("file-empty", "the worksheet is empty; expected a header row and data rows")
+    return raw
+
+
+def _choose_sheet(book: Any, settings: InputSettings, out: FindingCollector) -> Any:
+    """The worksheet ``input.sheet``, else the first one (None, with an error, when the
+    named one is missing or only another worksheet has the configured columns)."""
+    if settings.sheet is not None and settings.sheet not in book.sheetnames:
+        out.error(
+            "sheet-missing",
+            f"expected a worksheet named {settings.sheet!r} (input.sheet), got sheets "
+            f"{', '.join(map(repr, book.sheetnames))}; set input.sheet to one of these",
+            value=settings.sheet,
+        )
+        return None
+    sheet = book[settings.sheet] if settings.sheet is not None else book.worksheets[0]
+    if settings.sheet is not None or len(book.worksheets) <= 1:
+        return sheet
+    cmap = settings.columns
+    wanted = [nfc(c).strip() for c in (cmap.district_id, cmap.ili_visits, cmap.total_visits)]
+    if set(wanted) <= set(_sheet_header(sheet)):
+        return sheet
+    other = next(
+        (ws.title for ws in book.worksheets[1:] if set(wanted) <= set(_sheet_header(ws))), None
+    )
+    if other is None:
+        return sheet
+    out.error(
+        "sheet-elsewhere",
+        f"the first worksheet {sheet.title!r} lacks the configured columns "
+        f"({', '.join(map(repr, wanted))}) but worksheet {other!r} has them; set "
+        f"input.sheet = {other!r} to read it (sitrep reads the first worksheet "
+        "unless input.sheet names another)",
+        value=other,
+    )
+    return None
+
+
+def _sheet_rows(sheet: Any, settings: InputSettings) -> Raw | None:
+    """The worksheet as text columns from its first non-empty row (None: no header)."""
+    id_name = nfc(settings.columns.district_id)
+    header: list[str] | None = None
+    id_pos: int | None = None
+    cols: list[list[str]] = []
+    numeric_id: list[bool] = []
+    lines: list[int] = []
+    for number, values in enumerate(sheet.iter_rows(values_only=True), start=1):
+        cells = list(values)
+        if header is None:
+            if not any(v is not None and str(v).strip() for v in cells):
+                continue
+            while cells and (cells[-1] is None or str(cells[-1]).strip() == ""):
+                cells.pop()
+            header = ["" if v is None else str(v) for v in cells]
+            names = [nfc(h).strip() for h in header]
+            id_pos = names.index(id_name) if id_name in names else None
+            cols = [[] for _ in header]
+            continue
+        cells = (cells + [None] * len(header))[: len(header)]
+        for i, v in enumerate(cells):
+            cols[i].append(_cell_text(v, settings.decimal))
+        numeric_id.append(
+            id_pos is not None
+            and isinstance(cells[id_pos], (int, float))
+            and not isinstance(cells[id_pos], bool)
+        )
+        lines.append(number)
+    if header is None:
         return None
     raw = Raw(
-        header=header,
-        columns=[Col.of(c) for c in cols],
-        lines=np.array(lines, dtype=np.int64),
+        header=header, columns=[Col.of(c) for c in cols], lines=np.array(lines, dtype=np.int64)
     )
     if id_pos is not None:
         raw.numeric_id_cells[id_pos] = np.array(numeric_id, dtype=bool)

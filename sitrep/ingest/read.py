@@ -5,6 +5,16 @@ validation: every cell is parsed and typed, and *all* cells that fail are
 returned as findings before any value rule runs (those live in
 :mod:`sitrep.ingest.validate`). Bad content never raises; only a file that
 cannot be opened at all raises :class:`~sitrep.errors.InputError`.
+
+Lines are 1-based with the header as line 1, as a text editor shows them.
+For XLSX they are worksheet row numbers; for Parquet, row index + 2 (the
+line the row would have in a CSV export). Numeric id cells (XLSX numbers,
+Parquet numeric columns) holding whole numbers are read as their digits
+and their lines recorded in ``CountTable.numeric_id_lines``, so that
+the boundary check can tell a lost leading zero (``id-leading-zeros``)
+from a match; any other number is an ``id-numeric`` error. With
+``settings.id_zero_pad = K``, all-digit ids shorter than K digits are
+left-padded with zeros (one ``id-zero-padded`` note).
 """
 
 from __future__ import annotations
@@ -93,66 +103,18 @@ def read_count_table(
     InputError
         Only when the file cannot be opened (missing, a folder, no
         permission); the message names the path.
-
-    Notes
-    -----
-    Lines are 1-based with the header as line 1, as a text editor shows them.
-    For XLSX they are worksheet row numbers; for Parquet, row index + 2 (the
-    line the row would have in a CSV export). Numeric id cells (XLSX numbers,
-    Parquet numeric columns) holding whole numbers are read as their digits
-    and their lines recorded in ``CountTable.numeric_id_lines``, so that
-    the boundary check can tell a lost leading zero (``id-leading-zeros``)
-    from a match; any other number is an ``id-numeric`` error. With
-    ``settings.id_zero_pad = K``, all-digit ids shorter than K digits are
-    left-padded with zeros (one ``id-zero-padded`` note).
     """
     path = Path(path)
     out = FindingCollector(path.name)
-    try:
-        size = path.stat().st_size
-    except OSError as exc:
-        raise InputError(f"cannot open the {role} file {path}: {exc.strerror or exc}") from exc
-    if path.is_dir():
-        raise InputError(f"the {role} file {path} is a folder; give the path of a file")
-    limit = settings.max_input_mb * _MB
-    if size > limit:
-        out.error(
-            "file-too-large",
-            f"the file is {size / _MB:,.1f} MB, above the cap of {settings.max_input_mb:g} MB "
-            "(input.max_input_mb); it was not parsed. Check that this is the right file, "
-            "or raise input.max_input_mb",
-            value=str(size),
-        )
-        return None, out.report()
-    ext = path.suffix.lower()
-    if ext not in _CSV_EXT | _XLSX_EXT | _PARQUET_EXT:
-        out.error(
-            "file-format-unknown",
-            f"expected a .csv, .txt, .xlsx, .parquet or .pq file, got '{path.suffix or '(none)'}'; "
-            "save the table in one of these formats",
-            value=path.suffix,
-        )
+    ext = _check_file(path, settings, role, out)
+    if ext is None:
         return None, out.report()
     try:
         data = path.read_bytes()
     except OSError as exc:
         raise InputError(f"cannot read the {role} file {path}: {exc.strerror or exc}") from exc
     source = InputFile(role, path, hashlib.sha256(data).hexdigest(), len(data))
-
-    with warnings.catch_warnings(record=True) as caught:
-        warnings.simplefilter("always")
-        if ext in _CSV_EXT:
-            raw = read_csv(data, settings, out)
-        elif ext in _XLSX_EXT:
-            raw = read_xlsx(data, settings, out)
-        else:
-            raw = read_parquet(data, settings, out)
-    for w in caught:
-        out.add(
-            Severity.INFO,
-            "reader-warning",
-            f"the file reader warned: {w.message}",
-        )
+    raw = _parse(data, ext, settings, out)
     if raw is None:
         return None, out.report()
     typed = _type_table(raw, settings, system, out)
@@ -166,6 +128,53 @@ def read_count_table(
         numeric_id_lines=typed.numeric_id_lines,
     )
     return table, out.report()
+
+
+def _check_file(
+    path: Path, settings: InputSettings, role: str, out: FindingCollector
+) -> str | None:
+    """The file's lower-case extension, or None (with an error) when it is too large or of an
+    unknown format; raises InputError when it cannot be opened."""
+    try:
+        size = path.stat().st_size
+    except OSError as exc:
+        raise InputError(f"cannot open the {role} file {path}: {exc.strerror or exc}") from exc
+    if path.is_dir():
+        raise InputError(f"the {role} file {path} is a folder; give the path of a file")
+    if size > settings.max_input_mb * _MB:
+        out.error(
+            "file-too-large",
+            f"the file is {size / _MB:,.1f} MB, above the cap of {settings.max_input_mb:g} MB "
+            "(input.max_input_mb); it was not parsed. Check that this is the right file, "
+            "or raise input.max_input_mb",
+            value=str(size),
+        )
+        return None
+    ext = path.suffix.lower()
+    if ext not in _CSV_EXT | _XLSX_EXT | _PARQUET_EXT:
+        out.error(
+            "file-format-unknown",
+            f"expected a .csv, .txt, .xlsx, .parquet or .pq file, got '{path.suffix or '(none)'}'; "
+            "save the table in one of these formats",
+            value=path.suffix,
+        )
+        return None
+    return ext
+
+
+def _parse(data: bytes, ext: str, settings: InputSettings, out: FindingCollector) -> Raw | None:
+    """The file as text columns by its format; the reader's own warnings become notes."""
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        if ext in _CSV_EXT:
+            raw = read_csv(data, settings, out)
+        elif ext in _XLSX_EXT:
+            raw = read_xlsx(data, settings, out)
+        else:
+            raw = read_parquet(data, settings, out)
+    for w in caught:
+        out.add(Severity.INFO, "reader-warning", f"the file reader warned: {w.message}")
+    return raw
 
 
 # --------------------------------------------------------------------------- typing
