@@ -141,6 +141,11 @@ class ClusterResult:
         for name in ("local_i", "p_values", "q_values", "quadrants", "significant", "tested"):
             getattr(self, name).setflags(write=False)
 
+    def __reduce__(self) -> tuple[object, tuple[object, ...]]:
+        """Pickle through the constructor, so an unpickled result's arrays are read-only too."""
+        fields = tuple(getattr(self, f.name) for f in dataclasses.fields(self))
+        return (type(self), fields)
+
     @property
     def n_tested(self) -> int:
         """Number of districts that entered the statistic (the BH family size)."""
