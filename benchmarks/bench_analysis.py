@@ -11,10 +11,17 @@ Run::
 
     .venv/bin/python benchmarks/bench_analysis.py            # N = 500, 3000, 10000
     .venv/bin/python benchmarks/bench_analysis.py 500 2000   # chosen sizes
+    .venv/bin/python benchmarks/bench_analysis.py --side-by-side 3000 9999
+
+``--side-by-side N R`` times :func:`analyse_week` at N districts and R
+permutations with this week's and last week's local Moran's I one after the
+other (``SITREP_PARALLEL=0``) and side by side on two cores, best of three
+each, and checks that the two district tables are identical.
 """
 
 from __future__ import annotations
 
+import os
 import sys
 import time
 import warnings
@@ -103,7 +110,35 @@ def bench(n: int) -> tuple[float, float, float, int]:
     return t_graph, t_local, t_week, dg.n_links
 
 
+def side_by_side(n: int, permutations: int, repeats: int = 3) -> None:
+    """Print sequential and side-by-side times of one week's analysis and whether they agree."""
+    districts = Districts(voronoi_districts(n), InputFile("boundaries", Path("b.gpkg"), "0", 0))
+    dg = build_graph(districts.frame)
+    weeks = [EpiWeek(2025, 47, WeekSystem.MMWR), EpiWeek(2025, 48, WeekSystem.MMWR)]
+    table = counts_table(list(districts.ids), weeks)
+    settings = AnalysisSettings(permutations=permutations)
+    times: dict[str, list[float]] = {"0": [], "1": []}
+    tables = {}
+    for switch in ("0", "1") * repeats:
+        os.environ["SITREP_PARALLEL"] = switch
+        t0 = time.perf_counter()
+        result = analyse_week(table, None, districts, dg, settings)
+        times[switch].append(time.perf_counter() - t0)
+        tables[switch] = result.table
+    os.environ.pop("SITREP_PARALLEL")
+    same = tables["0"].equals(tables["1"])
+    print(
+        f"N={n} R={permutations}: one after the other best {min(times['0']):.2f} s, "
+        f"side by side best {min(times['1']):.2f} s (cores {len(os.sched_getaffinity(0))}); "
+        f"identical tables: {same}"
+    )
+
+
 def main(argv: list[str]) -> int:
+    if argv[:1] == ["--side-by-side"]:
+        warnings.simplefilter("error")
+        side_by_side(int(argv[1]), int(argv[2]))
+        return 0
     sizes = tuple(int(a) for a in argv) or SIZES
     warnings.simplefilter("error")  # the analysis must not warn
     print(f"{'N':>7} {'links':>7} {'graph s':>9} {'local 999 s':>12} {'analyse_week s':>15}")

@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import os
 import pickle
+import threading
 from pathlib import Path
 
 import esda
@@ -29,7 +30,23 @@ from sitrep.config import AnalysisSettings
 from sitrep.model import CountTable, Districts, InputFile
 from sitrep.weeks import EpiWeek, WeekSystem
 
-needs_fork = pytest.mark.skipif(not can_fork(), reason="no fork or fewer than two usable cores")
+needs_fork = pytest.mark.skipif(
+    not (hasattr(os, "fork") and parallel.usable_cores() >= 2),
+    reason="no fork or fewer than two usable cores",
+)
+
+
+@pytest.fixture(autouse=True)
+def _idle_threads_of_other_tests(monkeypatch: pytest.MonkeyPatch) -> None:
+    """Admit threads that earlier tests of this run left idle (e.g. a Dask offload thread).
+
+    These tests are about the fork itself; in a real build any unknown thread keeps both
+    computations in one process (test_another_thread_keeps_both_computations_here).
+    """
+    main = threading.main_thread()
+    left = {t.name for t in threading.enumerate() if t is not main}
+    monkeypatch.setattr(parallel, "FORK_TOLERANT_THREADS", parallel.FORK_TOLERANT_THREADS | left)
+    monkeypatch.delenv("SITREP_PARALLEL", raising=False)
 
 
 def _no_children_left() -> bool:
@@ -178,3 +195,34 @@ def test_the_week_is_the_same_with_its_two_local_statistics_side_by_side(
         y, dg.graph, transformation="r", permutations=199, seed=99, n_jobs=1
     )
     np.testing.assert_allclose(together.prior_clusters.p_values, reference.p_sim)
+
+
+@needs_fork
+def test_the_progress_bar_thread_does_not_keep_the_week_from_running_side_by_side() -> None:
+    import io
+
+    from sitrep.progress import TextProgress
+
+    progress = TextProgress(io.StringIO(), terminal=True, bar_after=0.0)
+    progress.start("analysis")
+    progress.step("analysis", 0, 3)
+    try:
+        names = {t.name for t in threading.enumerate()} - {threading.main_thread().name}
+        assert "sitrep-progress" in names and names <= parallel.FORK_TOLERANT_THREADS
+        assert can_fork()
+        here, there = side_by_side(os.getpid, os.getpid)
+        assert there != here
+    finally:
+        progress.close()
+
+
+def test_another_thread_keeps_both_computations_here() -> None:
+    release = threading.Event()
+    other = threading.Thread(target=release.wait, name="someone-else")
+    other.start()
+    try:
+        assert not can_fork()
+        assert side_by_side(os.getpid, os.getpid) == (os.getpid(), os.getpid())
+    finally:
+        release.set()
+        other.join()

@@ -13,8 +13,9 @@ not unpickle) ``there`` simply runs again here, so the worst case is the
 sequential time and a failure is raised from this process with its own
 traceback. Forking is skipped (both run here, one after the other) where it
 is not available or not safe: no ``os.fork`` (Windows), fewer than two usable
-cores, other Python threads running, or ``SITREP_PARALLEL=0`` in the
-environment.
+cores, a Python thread running that the child might need (any other than
+sitrep's own progress ticker, which only redraws a bar the child never
+touches), or ``SITREP_PARALLEL=0`` in the environment.
 """
 
 from __future__ import annotations
@@ -35,6 +36,10 @@ U = TypeVar("U")
 _SWITCH = "SITREP_PARALLEL"
 """Environment variable: "0" runs everything in this process."""
 
+FORK_TOLERANT_THREADS = frozenset({"sitrep-progress"})
+"""Names of sitrep's own threads that may be running at a fork: they hold no lock the child
+uses (the progress ticker takes only its own lock to redraw the bar on the terminal)."""
+
 
 def usable_cores() -> int:
     """Cores this process may run on (its CPU affinity where the system tells it)."""
@@ -49,7 +54,15 @@ def can_fork() -> bool:
         hasattr(os, "fork")
         and os.environ.get(_SWITCH, "1") != "0"
         and usable_cores() >= 2
-        and threading.active_count() == 1
+        and _only_tolerant_threads()
+    )
+
+
+def _only_tolerant_threads() -> bool:
+    """True when this is the main thread and every other live thread is one of sitrep's own."""
+    main = threading.main_thread()
+    return threading.current_thread() is main and all(
+        t is main or t.name in FORK_TOLERANT_THREADS for t in threading.enumerate()
     )
 
 
@@ -93,8 +106,8 @@ def _fork() -> int:
     """``os.fork()``, with Python's warning about threads of other libraries silenced.
 
     Python 3.12+ warns when the process has more than one OS thread. The
-    extra threads here are not Python's (:func:`can_fork` requires that
-    there is only one): they are the BLAS thread pools of numpy and scipy
+    extra threads here are, besides the progress ticker that :func:`can_fork`
+    admits, not Python's: they are the BLAS thread pools of numpy and scipy
     and pyarrow's allocator thread, which all install fork handlers and are
     not used by the child's permutation loop in a way that needs them.
     """
