@@ -63,7 +63,8 @@ TOP_LEVEL: dict[str, set[str]] = {
     "past_extracts": {"ingest", "analysis", "deliver", *SHARED},
     "batch": {"pipeline", "deliver", *SHARED},
     "delivery_jobs": {*ORDER, *SHARED, "pipeline"},
-    "starter": {"ingest", *SHARED},
+    "starter": {"ingest", "starter_config", *SHARED},
+    "starter_config": {"starter", *SHARED},  # Proposal, for a type annotation only
     "cli": {
         *ORDER,
         *SHARED,
