@@ -52,7 +52,7 @@ def reader_modules(stage: Stage) -> list[Path]:
     return sorted(p for p in INGEST.glob("*.py") if p.name in READ_MODULES)
 
 
-READ_MODULES = {"read.py", "raw_table.py", "week_cells.py", "id_cells.py"}
+READ_MODULES = {"read.py", "raw_table.py", "week_cells.py", "id_cells.py", "count_cells.py"}
 
 
 def test_ids_are_unique_kebab_case_and_described_in_one_line() -> None:

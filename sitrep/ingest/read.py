@@ -22,9 +22,7 @@ from __future__ import annotations
 import dataclasses
 import difflib
 import hashlib
-import re
 import warnings
-from collections.abc import Callable
 from pathlib import Path
 from typing import Any
 
@@ -33,9 +31,10 @@ import pandas as pd
 
 from sitrep.config import ColumnMap, InputSettings
 from sitrep.errors import InputError
+from sitrep.ingest.count_cells import Cells, apply_unique, count_column, rate_column
 from sitrep.ingest.findings import FindingCollector
 from sitrep.ingest.id_cells import ids_as_read, numeric_id_lines, pad_id
-from sitrep.ingest.raw_table import Col, Raw, nfc, read_csv, read_parquet, read_xlsx
+from sitrep.ingest.raw_table import Raw, nfc, read_csv, read_parquet, read_xlsx
 from sitrep.ingest.rules import Stage, descriptions
 from sitrep.ingest.week_cells import WeekSpec, type_weeks
 from sitrep.model import CountTable, InputFile, Severity, SourceColumns, ValidationReport
@@ -221,48 +220,6 @@ def _week_spec(cmap: ColumnMap, out: FindingCollector) -> tuple[str, list[str]] 
     return None
 
 
-_INT_TEXT = {".": re.compile(r"^[+-]?\d+(?:\.\d+)?$"), ",": re.compile(r"^[+-]?\d+(?:,\d+)?$")}
-_THOUSANDS = re.compile(r"^[+-]?\d{1,3}(?:[ ,.'\u00a0\u202f]\d{3})+$")
-
-
-def _number_hint(text: str, decimal: str) -> str:
-    if "%" in text:
-        return "remove the % sign and give the count"
-    if text.startswith(("<", ">", "≤", "≥")):
-        return "a censored value such as <5 cannot be counted; supply the exact count"
-    other = "," if decimal == "." else "."
-    decimal_like = re.match(rf"^[+-]?\d+\{other}\d+$", text) is not None
-    if _THOUSANDS.match(text):
-        if decimal_like:  # '3,779' is 3779 with grouping, or 3.779 with a decimal comma
-            return (
-                f"it has a thousands separator or uses {other!r} as the decimal mark; export "
-                f"numbers without grouping, or set input.decimal = {other!r} if that is the "
-                "file's decimal mark"
-            )
-        return "it looks like a thousands separator; export numbers without grouping"
-    if decimal_like:
-        return (
-            f"it uses {other!r} as the decimal mark but input.decimal is {decimal!r}; "
-            f"set input.decimal = {other!r} if that is the file's convention"
-        )
-    return "give a plain number such as 12"
-
-
-def _parse_number(text: str, decimal: str) -> float | None:
-    """Plain decimal number in the declared notation, else None."""
-    t = text.strip()
-    if not _INT_TEXT[decimal].match(t):
-        return None
-    return float(t.replace(",", ".")) if decimal == "," else float(t)
-
-
-def _apply_unique(
-    col: Col, parse: Callable[[str], Any]
-) -> tuple[np.ndarray, list[Any], np.ndarray]:
-    """Parse each distinct text once: (codes, parsed uniques, unique texts)."""
-    return col.codes, [parse(str(u)) for u in col.uniques], col.uniques
-
-
 @dataclasses.dataclass(frozen=True)
 class _Typed:
     """The typed frame and what findings need to know about the file's columns."""
@@ -272,12 +229,76 @@ class _Typed:
     numeric_id_lines: tuple[int, ...]
 
 
+@dataclasses.dataclass(frozen=True)
+class _Positions:
+    """Where the mapped columns are in the header (None: optional and not in the file)."""
+
+    id: int
+    name: int | None
+    sites: int | None
+    ili: int
+    total: int
+    rate: int | None
+    week: list[int]
+
+
+@dataclasses.dataclass(frozen=True)
+class _Ids:
+    """District ids per row: codes into the distinct ids as read (stripped, padded)."""
+
+    codes: np.ndarray
+    uniques: np.ndarray
+    numeric_lines: tuple[int, ...]
+
+    def at(self, i: int) -> str | None:
+        return str(self.uniques[self.codes[i]]) or None
+
+
 def _type_table(
     raw: Raw, settings: InputSettings, system: WeekSystem, out: FindingCollector
 ) -> _Typed | None:
-    cmap = settings.columns
+    """Find the mapped columns, drop blank rows, type ids, names, counts and weeks, assemble."""
     names = [nfc(h).strip() for h in raw.header]
-    # duplicated header cells (blank names are unmapped and ignored)
+    positions = _header_positions(names, out)
+    spec = _week_spec(settings.columns, out)
+    pos = _find_columns(settings.columns, names, positions, spec, out)
+    if out.has_errors or pos is None or spec is None:
+        return None
+    raw = _drop_blank_rows(raw, out)
+    if len(raw.lines) == 0:
+        out.error(
+            "file-header-only",
+            "the file has a header but no data rows; expected one row per district and "
+            "week. Check that the export finished",
+            line=1,
+        )
+        return None
+    ids = _district_ids(raw, pos.id, names, settings, out)
+    cells = Cells(raw, names, ids.at, out)
+    decimal = settings.decimal
+    ili = count_column(cells, pos.ili, True, "ILI visits", decimal)
+    total = count_column(cells, pos.total, True, "total visits", decimal)
+    sites = (
+        count_column(cells, pos.sites, False, "reporting sites", decimal)
+        if pos.sites is not None
+        else np.full(len(raw.lines), np.nan)
+    )
+    rate = None
+    if pos.rate is not None:
+        rate = rate_column(cells, pos.rate, decimal, settings.columns.rate_scale == "per_1000")
+    week_codes, categories = type_weeks(
+        raw, WeekSpec(*spec), pos.week, names, system, ids.at, out, settings.date_format
+    )
+    if out.has_errors or week_codes is None:
+        return None
+    counts = {"reporting_sites": sites, "ili_visits": ili, "total_visits": total}
+    return _assemble(
+        raw, names, pos, ids, _district_names(raw, pos.name), counts, rate, (week_codes, categories)
+    )
+
+
+def _header_positions(names: list[str], out: FindingCollector) -> dict[str, list[int]]:
+    """The positions of each header name; a name given twice is an error (blanks ignored)."""
     positions: dict[str, list[int]] = {}
     for i, h in enumerate(names):
         if h:
@@ -293,35 +314,57 @@ def _type_table(
                 column=h,
                 value=h,
             )
-    spec = _week_spec(cmap, out)
+    return positions
+
+
+def _find_column(
+    name: str | None,
+    required: bool,
+    what: str,
+    names: list[str],
+    positions: dict[str, list[int]],
+    out: FindingCollector,
+) -> int | None:
+    """The position of a mapped column; a missing one is an error, or a warning when optional."""
+    if not name:
+        return None
+    key = nfc(name).strip()
+    if key in positions:
+        return positions[key][0]
     present = ", ".join(repr(h) for h in names if h) or "(none)"
+    close = difflib.get_close_matches(key, [h for h in names if h], n=1, cutoff=0.6)
+    hint = f" (did you mean {close[0]!r}?)" if close else ""
+    if required:
+        out.error(
+            "column-missing",
+            f"expected a column {key!r} for the {what}, got columns {present}{hint}; "
+            "rename the column or set the column map in the configuration",
+            line=1,
+            column=key,
+        )
+    else:
+        out.add(
+            Severity.WARNING,
+            "column-optional-missing",
+            f"the optional column {key!r} ({what}) is not in the file (columns: "
+            f"{present}){hint}; it is treated as not supplied",
+            line=1,
+            column=key,
+        )
+    return None
+
+
+def _find_columns(
+    cmap: ColumnMap,
+    names: list[str],
+    positions: dict[str, list[int]],
+    spec: tuple[str, list[str]] | None,
+    out: FindingCollector,
+) -> _Positions | None:
+    """Every mapped column's position, or None when a required one is missing."""
 
     def find(name: str | None, required: bool, what: str) -> int | None:
-        if not name:
-            return None
-        key = nfc(name).strip()
-        if key in positions:
-            return positions[key][0]
-        close = difflib.get_close_matches(key, [h for h in names if h], n=1, cutoff=0.6)
-        hint = f" (did you mean {close[0]!r}?)" if close else ""
-        if required:
-            out.error(
-                "column-missing",
-                f"expected a column {key!r} for the {what}, got columns {present}{hint}; "
-                "rename the column or set the column map in the configuration",
-                line=1,
-                column=key,
-            )
-        else:
-            out.add(
-                Severity.WARNING,
-                "column-optional-missing",
-                f"the optional column {key!r} ({what}) is not in the file (columns: "
-                f"{present}){hint}; it is treated as not supplied",
-                line=1,
-                column=key,
-            )
-        return None
+        return _find_column(name, required, what, names, positions, out)
 
     pos_id = find(cmap.district_id, True, "district id")
     pos_name = find(_opt(cmap.district_name), False, "district name")
@@ -330,169 +373,91 @@ def _type_table(
     pos_total = find(cmap.total_visits, True, "total visits")
     pos_rate = find(_opt(cmap.rate), True, "supplied rate") if _opt(cmap.rate) else None
     pos_week = [find(c, True, "week") for c in spec[1]] if spec else []
-    if out.has_errors:
+    if pos_id is None or pos_ili is None or pos_total is None or None in pos_week:
         return None
+    weeks = [p for p in pos_week if p is not None]
+    return _Positions(pos_id, pos_name, pos_sites, pos_ili, pos_total, pos_rate, weeks)
 
-    n = len(raw.lines)
-    # drop rows whose every cell is blank (e.g. a trailing ",,,,," line)
-    blank = np.ones(n, dtype=bool)
+
+def _drop_blank_rows(raw: Raw, out: FindingCollector) -> Raw:
+    """``raw`` without the rows whose every cell is blank (e.g. a trailing ",,,,," line); each
+    such row before the last kept one is noted."""
+    blank = np.ones(len(raw.lines), dtype=bool)
     for col in raw.columns:
         if not blank.any():
             break
         empty_u = np.array([not str(u).strip() for u in col.uniques], dtype=bool)
         blank &= empty_u[col.codes] if len(col.uniques) else True
-    if blank.any():
-        keep = ~blank
-        last_kept = int(np.flatnonzero(keep).max()) if keep.any() else -1
-        for i in np.flatnonzero(blank).tolist():
-            if i < last_kept:
-                out.add(
-                    Severity.INFO,
-                    "row-blank",
-                    "this row has no values and was skipped",
-                    line=int(raw.lines[i]),
-                )
-        raw = Raw(
-            header=raw.header,
-            columns=[c.take(keep) for c in raw.columns],
-            lines=raw.lines[keep],
-            numeric_id_cells={k: v[keep] for k, v in raw.numeric_id_cells.items()},
-            numeric_columns=raw.numeric_columns,
-        )
-        n = len(raw.lines)
-    if n == 0:
-        out.error(
-            "file-header-only",
-            "the file has a header but no data rows; expected one row per district and "
-            "week. Check that the export finished",
-            line=1,
-        )
-        return None
+    if not blank.any():
+        return raw
+    keep = ~blank
+    last_kept = int(np.flatnonzero(keep).max()) if keep.any() else -1
+    for i in np.flatnonzero(blank).tolist():
+        if i < last_kept:
+            out.add(
+                Severity.INFO,
+                "row-blank",
+                "this row has no values and was skipped",
+                line=int(raw.lines[i]),
+            )
+    return Raw(
+        header=raw.header,
+        columns=[c.take(keep) for c in raw.columns],
+        lines=raw.lines[keep],
+        numeric_id_cells={k: v[keep] for k, v in raw.numeric_id_cells.items()},
+        numeric_columns=raw.numeric_columns,
+    )
 
-    assert pos_id is not None and pos_ili is not None and pos_total is not None and spec
-    lines = raw.lines
 
-    def col_name(pos: int) -> str:
-        return names[pos]
-
-    # ---- district ids
+def _district_ids(
+    raw: Raw, pos_id: int, names: list[str], settings: InputSettings, out: FindingCollector
+) -> _Ids:
+    """The id of every row as read (NFC, stripped when so set, padded); blank ids are errors."""
     id_number_lines = numeric_id_lines(raw, pos_id)
     strip = settings.strip_id_whitespace
-    id_codes, id_parsed, _ = _apply_unique(
+    id_codes, id_parsed, _ = apply_unique(
         raw.columns[pos_id], lambda t: nfc(t.strip() if strip else t)
     )
     id_u = np.array(id_parsed, dtype=object)
-    id_u = ids_as_read(raw, pos_id, id_codes, id_u, col_name(pos_id), settings, out)
+    id_u = ids_as_read(raw, pos_id, id_codes, id_u, names[pos_id], settings, out)
     empty_ids = np.flatnonzero(np.array([not u.strip() for u in id_parsed], dtype=bool)[id_codes])
     for i in empty_ids.tolist():
         out.error(
             "id-missing",
             "expected a district id, got an empty cell; fill in the id or delete the row",
-            line=int(lines[i]),
-            column=col_name(pos_id),
+            line=int(raw.lines[i]),
+            column=names[pos_id],
             value=raw.columns[pos_id].text(i),
         )
+    return _Ids(id_codes, id_u, id_number_lines)
 
-    def id_at(i: int) -> str | None:
-        return str(id_u[id_codes[i]]) or None
 
-    def cell_error(rule: str, pos: int, rows: np.ndarray, message: Callable[[str], str]) -> None:
-        for i in rows:
-            value = raw.columns[pos].text(i)
-            out.error(
-                rule,
-                message(value),
-                line=int(lines[i]),
-                column=col_name(pos),
-                district_id=id_at(i),
-                value=value,
-            )
+def _district_names(raw: Raw, pos_name: int | None) -> np.ndarray:
+    """The district name of every row (NFC, stripped), or blanks without a name column."""
+    if pos_name is None:
+        return np.array([""] * len(raw.lines), dtype=object)
+    codes, parsed, _ = apply_unique(raw.columns[pos_name], lambda t: nfc(t.strip()))
+    return np.array(parsed, dtype=object)[codes]
 
-    # ---- names
-    if pos_name is not None:
-        codes, parsed, _ = _apply_unique(raw.columns[pos_name], lambda t: nfc(t.strip()))
-        district_names = np.array(parsed, dtype=object)[codes]
-    else:
-        district_names = np.array([""] * n, dtype=object)
 
-    # ---- counts
-    decimal = settings.decimal
-
-    def count_column(pos: int, required: bool, what: str) -> np.ndarray:
-        codes, parsed, texts = _apply_unique(raw.columns[pos], lambda t: _parse_number(t, decimal))
-        blank_u = np.array([not str(t).strip() for t in texts], dtype=bool)
-        bad_u = np.array([p is None for p in parsed], dtype=bool) & ~blank_u
-        frac_u = np.array([p is not None and not float(p).is_integer() for p in parsed], dtype=bool)
-        if required:
-            cell_error(
-                "cell-missing",
-                pos,
-                np.flatnonzero(blank_u[codes]),
-                lambda v: (
-                    f"expected the number of {what}, got an empty cell; enter the count "
-                    "(0 if there were none) or delete the row"
-                ),
-            )
-        cell_error(
-            "cell-not-number",
-            pos,
-            np.flatnonzero(bad_u[codes]),
-            lambda v: (
-                f"expected the number of {what} as a plain number, got {v!r}; "
-                + _number_hint(v.strip(), decimal)
-            ),
-        )
-        cell_error(
-            "count-not-integer",
-            pos,
-            np.flatnonzero(frac_u[codes]),
-            lambda v: (
-                f"expected a whole number of {what}, got {v!r}; counts of visits or "
-                "sites cannot be fractional. Check the export (was a rate put in this column?)"
-            ),
-        )
-        values = np.array([np.nan if p is None else p for p in parsed], dtype=np.float64)
-        return values[codes] if len(parsed) else np.zeros(0)
-
-    ili = count_column(pos_ili, True, "ILI visits")
-    total = count_column(pos_total, True, "total visits")
-    sites = (
-        count_column(pos_sites, False, "reporting sites")
-        if pos_sites is not None
-        else np.full(n, np.nan)
-    )
-    rate = None
-    if pos_rate is not None:
-        codes, parsed, texts = _apply_unique(
-            raw.columns[pos_rate], lambda t: _parse_number(t, decimal)
-        )
-        blank_u = np.array([not str(t).strip() for t in texts], dtype=bool)
-        bad_u = np.array([p is None for p in parsed], dtype=bool) & ~blank_u
-        cell_error(
-            "cell-not-number",
-            pos_rate,
-            np.flatnonzero(bad_u[codes]),
-            lambda v: (
-                f"expected the supplied rate as a plain number, got {v!r}; "
-                + _number_hint(v.strip(), decimal)
-            ),
-        )
-        values = np.array([np.nan if p is None else p for p in parsed], dtype=np.float64)[codes]
-        rate = values / 10.0 if cmap.rate_scale == "per_1000" else values
-
-    # ---- weeks
-    week_codes, categories = type_weeks(
-        raw, WeekSpec(*spec), pos_week, names, system, id_at, out, settings.date_format
-    )
-
-    if out.has_errors or week_codes is None:
-        return None
-
-    # ---- assemble, sorted by week then district id
+def _assemble(
+    raw: Raw,
+    names: list[str],
+    pos: _Positions,
+    ids: _Ids,
+    district_names: np.ndarray,
+    counts: dict[str, np.ndarray],
+    rate: np.ndarray | None,
+    weeks: tuple[np.ndarray, list[Any]],
+) -> _Typed:
+    """The typed frame sorted by week then district id (then line), and the source columns."""
+    week_codes, categories = weeks
+    lines = raw.lines
     order_cat = sorted(range(len(categories)), key=categories.__getitem__)
     rank = np.empty(len(categories), dtype=np.int64)
     rank[order_cat] = np.arange(len(categories))
     week_rank = rank[week_codes]
+    id_u, id_codes = ids.uniques, ids.codes
     id_rank_u = np.empty(len(id_u), dtype=np.int64)
     id_rank_u[np.argsort(np.asarray(id_u, dtype=str), kind="stable")] = np.arange(len(id_u))
     order = np.lexsort((lines, id_rank_u[id_codes], week_rank))
@@ -504,23 +469,23 @@ def _type_table(
             "week": pd.Categorical.from_codes(
                 week_rank[order], categories=pd.Index(sorted_cats, dtype=object), ordered=True
             ),
-            "reporting_sites": sites[order].astype(np.float64),
-            "ili_visits": ili[order].astype(np.int64),
-            "total_visits": total[order].astype(np.int64),
+            "reporting_sites": counts["reporting_sites"][order].astype(np.float64),
+            "ili_visits": counts["ili_visits"][order].astype(np.int64),
+            "total_visits": counts["total_visits"][order].astype(np.int64),
             "line": lines[order].astype(np.int64),
         }
     )
     source_columns = {
-        "district_id": col_name(pos_id),
-        "ili_visits": col_name(pos_ili),
-        "total_visits": col_name(pos_total),
-        "week": ", ".join(col_name(p) for p in pos_week if p is not None),
+        "district_id": names[pos.id],
+        "ili_visits": names[pos.ili],
+        "total_visits": names[pos.total],
+        "week": ", ".join(names[p] for p in pos.week),
     }
-    if pos_name is not None:
-        source_columns["district_name"] = col_name(pos_name)
-    if pos_sites is not None:
-        source_columns["reporting_sites"] = col_name(pos_sites)
-    if rate is not None and pos_rate is not None:
+    if pos.name is not None:
+        source_columns["district_name"] = names[pos.name]
+    if pos.sites is not None:
+        source_columns["reporting_sites"] = names[pos.sites]
+    if rate is not None and pos.rate is not None:
         frame["rate_percent"] = rate[order]
-        source_columns["rate_percent"] = col_name(pos_rate)
-    return _Typed(frame, SourceColumns(**source_columns), id_number_lines)
+        source_columns["rate_percent"] = names[pos.rate]
+    return _Typed(frame, SourceColumns(**source_columns), ids.numeric_lines)

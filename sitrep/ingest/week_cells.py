@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import datetime as dt
 import re
-from collections.abc import Callable
+from collections.abc import Callable, Sequence
 from typing import NamedTuple
 
 import numpy as np
@@ -115,7 +115,7 @@ def _date_parser(kind: str, system: WeekSystem, date_format: str | None) -> Pars
     return parse
 
 
-def _week_texts(raw: Raw, kind: str, pos_week: list[int | None]) -> tuple[Col, int]:
+def _week_texts(raw: Raw, kind: str, pos_week: Sequence[int | None]) -> tuple[Col, int]:
     """The week cells as one text column (year and week joined by ``|``) and the position
     of the column that findings name."""
     if kind != "year-week":
@@ -176,7 +176,7 @@ def _report_bad(
 def type_weeks(
     raw: Raw,
     spec: WeekSpec,
-    pos_week: list[int | None],
+    pos_week: Sequence[int | None],
     names: list[str],
     system: WeekSystem,
     id_at: Callable[[int], str | None],
