@@ -29,7 +29,6 @@ from sitrep.render.report_figures import FigureItem, ReportFigures
 from sitrep.render.report_notes import QualityItem
 from sitrep.render.wording import formats as fm
 from sitrep.render.wording import plain as pl
-from sitrep.render.wording import sentences as nv
 from sitrep.render.wording.mail import ATTACHED
 from sitrep.render.wording.tables import pdf_table_note
 
@@ -146,15 +145,7 @@ def build_context(
     dates = fm.fmt_week_dates(week.start, week.end)
     if digits is None:
         digits = context_digits(analysis, seasonal)
-    msgs = report_messages(
-        analysis=analysis,
-        seasonal=seasonal,
-        validation=validation,
-        config=config,
-        names=names,
-        dates=dates,
-        digits=digits,
-    )
+    msgs = report_messages(analysis, seasonal, validation, config, names, dates, digits)
     rows = district_rows(analysis, seasonal, a.change_alpha, digits)
     top = pdf_rows(rows, config.report.top_districts_in_pdf, msgs.named_ids)
     disclosure_note = notes.disclosure_note(analysis.disclosure)
@@ -189,24 +180,11 @@ def build_context(
         quality_overall=notes.quality_overall(validation),
         quality_statement=notes.quality_statement(validation, names, msgs.named_ids),
         analysis_notes=tuple(dict.fromkeys(analysis.notes)),
-        reissue_note=(
-            nv.reissue_note(version=reissue[0], week_number=week.week, reason=reissue[1])
-            if reissue
-            else ""
-        ),
+        reissue_note=notes.reissue_note(reissue, week.week),
         draft_key_messages=msgs.draft,
         ci_heading=f"{conf_label} CI",
         build_time=build_time,
-        tiles=tiles(
-            analysis=analysis,
-            seasonal=seasonal,
-            rows=rows,
-            confidence=a.confidence,
-            verdict=msgs.verdict,
-            rising_for=msgs.rising_for,
-            unsettled=msgs.unsettled,
-            digits=digits,
-        ),
+        tiles=tiles(analysis, seasonal, rows, msgs, confidence=a.confidence, digits=digits),
         district_table=district_table(rows, confidence_label=conf_label, min_visits=a.min_visits),
         district_table_pdf=district_table(
             top, confidence_label=conf_label, order="given", min_visits=a.min_visits

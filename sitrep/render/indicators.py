@@ -16,6 +16,7 @@ from sitrep.analysis.seasonal_context import SeasonalContext
 from sitrep.analysis.week import WeekAnalysis
 from sitrep.config import Config
 from sitrep.render.district_rows import DistrictRow, as_float
+from sitrep.render.messages import Messages
 from sitrep.render.wording import formats as fm
 from sitrep.render.wording import sentences as nv
 from sitrep.render.wording import tiles as tl
@@ -156,18 +157,17 @@ def _threshold_rows(seasonal: SeasonalContext, config: Config, digits: int) -> l
 
 
 def tiles(
-    *,
     analysis: WeekAnalysis,
     seasonal: SeasonalContext,
     rows: Sequence[DistrictRow],
+    messages: Messages,
+    *,
     confidence: float,
-    verdict: str,
-    rising_for: int,
-    unsettled: bool,
     digits: int,
 ) -> tuple[Tile, ...]:
     """The headline boxes: level, change, season, over the threshold (when known), reporting, clusters."""
     week, prior, j = analysis.week, analysis.prior_week, analysis.jurisdiction
+    verdict, rising_for, unsettled = messages.verdict, messages.rising_for, messages.unsettled
     out = [
         tl.level_tile(
             pct=j.ili_percent, low=j.ci_low, high=j.ci_high, confidence=confidence, digits=digits

@@ -53,7 +53,6 @@ class _Clusters:
 
 
 def report_messages(
-    *,
     analysis: WeekAnalysis,
     seasonal: SeasonalContext,
     validation: ValidationReport,

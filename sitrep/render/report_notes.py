@@ -29,6 +29,7 @@ __all__ = [
     "quality_items",
     "quality_overall",
     "quality_statement",
+    "reissue_note",
 ]
 
 
@@ -102,6 +103,13 @@ def data_as_of(analysis: WeekAnalysis, inputs: Sequence[InputFile]) -> str:
         latest_day=f"{end.day} {end:%B %Y}",
         file_name=table_file.path.name if table_file else "",
     )
+
+
+def reissue_note(reissue: tuple[int, str] | None, week_number: int) -> str:
+    """On a reissued report (version, reason): which version this is and why; else empty."""
+    if not reissue:
+        return ""
+    return nv.reissue_note(version=reissue[0], week_number=week_number, reason=reissue[1])
 
 
 def disclosure_note(decision: DisclosureDecision) -> str:
