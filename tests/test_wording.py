@@ -10,6 +10,7 @@ from sitrep.render.wording import formats as fm
 from sitrep.render.wording import methods as mt
 from sitrep.render.wording import plain as pl
 from sitrep.render.wording import sentences as nv
+from sitrep.render.wording import tables as tb
 
 BASE = dict(
     pct_now=2.18,
@@ -360,3 +361,10 @@ def test_tercile_caption_without_cut_points_reads_as_a_sentence() -> None:
         first_week=44, week=47, cuts=(1.36, 2.77), digits=2, counts="15 in the highest third"
     )
     assert "cut points 1.36% and 2.77%" in with_cuts
+
+
+def test_pdf_table_note_counts_the_rows_and_points_to_the_full_table() -> None:
+    note = tb.pdf_table_note(n_shown=15, n_all=42)
+    assert note.startswith("The 15 districts with the highest ILI% this week")
+    assert "full table of 42 districts" in note
+    assert "HTML report" in note and "results.csv" in note

@@ -13,6 +13,7 @@ from sitrep.render.wording.sentences import VERDICTS
 __all__ = [
     "CLASS_ORDERS",
     "HEADINGS",
+    "pdf_table_note",
     "table_key",
 ]
 
@@ -94,3 +95,11 @@ def table_key(columns: Collection[str], *, min_visits: int | None = None) -> tup
     if min_visits is not None and "ili_pct" in columns:
         key.append(f"Suppressed: fewer than {min_visits} visits; the value is not shown.")
     return tuple(key)
+
+
+def pdf_table_note(*, n_shown: int, n_all: int) -> str:
+    """The sentence under the PDF's district table (the HTML report has every district)."""
+    return (
+        f"The {n_shown} districts with the highest ILI% this week or named above, highest first; the "
+        f"full table of {n_all} districts is in the HTML report and results.csv."
+    )
