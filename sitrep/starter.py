@@ -36,9 +36,10 @@ from collections.abc import Sequence
 from pathlib import Path
 from typing import Any
 
-from sitrep.errors import ConfigError, InputError
+from sitrep.errors import InputError
+from sitrep.starter_config import render_config, write_config
 
-__all__ = ["Proposal", "propose", "render_config"]
+__all__ = ["Proposal", "propose", "render_config", "write_config"]
 
 SAMPLE_ROWS = 5000
 """Rows of the table read to recognise columns."""
@@ -253,13 +254,32 @@ def propose(table: Path, boundaries: Path) -> Proposal:
         h: [(r[i] if i < len(r) else "") for r in rows] for i, h in enumerate(header) if h.strip()
     }
     fields = _read_boundary_fields(boundaries, prop)
-    taken: set[str] = set()
+    _propose_id(prop, cols, fields)
+    _propose_names(prop, cols, fields)
+    _propose_week(prop, cols)
+    _propose_counts(prop, cols)
+    _propose_rate(prop, cols)
+    unused = [h for h in cols if h not in _taken(prop)]
+    if unused:
+        prop.notes.append(f"columns not used: {', '.join(unused)}")
+    return prop
 
-    def take(key: str, column: str, reason: str | None) -> None:
-        prop.columns[key] = (column, reason)
-        taken.add(column)
 
-    # district id and boundary id field: the best overlap of values
+Columns = dict[str, list[str]]
+"""The sampled table: header -> cell texts."""
+
+
+def _taken(prop: Proposal) -> set[str]:
+    """The table columns already given a role."""
+    return {column for column, _ in prop.columns.values()}
+
+
+def _take(prop: Proposal, key: str, column: str, reason: str | None) -> None:
+    prop.columns[key] = (column, reason)
+
+
+def _propose_id(prop: Proposal, cols: Columns, fields: Columns) -> None:
+    """The district id column and boundary id field: the best overlap of their values."""
     best = (0.0, "", "")
     for h, values in cols.items():
         vs = {v.strip() for v in values if v.strip()}
@@ -275,26 +295,31 @@ def propose(table: Path, boundaries: Path) -> Proposal:
                 best = (share + bonus, h, f)
     if best[0] < 0.5:
         raise InputError(
-            f"no column of {table.name} shares its values with a field of {boundaries.name} "
-            f"(table columns: {', '.join(cols)}; boundary fields: {', '.join(fields)}); the "
-            "district ids must be written the same way in both"
+            f"no column of {prop.table.name} shares its values with a field of "
+            f"{prop.boundaries.name} (table columns: {', '.join(cols)}; boundary fields: "
+            f"{', '.join(fields)}); the district ids must be written the same way in both"
         )
     share = min(best[0], 1.0)
-    take(
+    _take(
+        prop,
         "district_id",
         best[1],
         f"{share:.0%} of its values are ids in the boundary field {best[2]!r}",
     )
     prop.boundaries_id = (best[2], f"the field whose values match the table's {best[1]!r}")
 
-    # district name: the other text columns matching another boundary field, else a header word
+
+def _propose_names(prop: Proposal, cols: Columns, fields: Columns) -> None:
+    """The district name column and field: text values matching another boundary field, else
+    a header word."""
+    id_field, taken = prop.boundaries_id[0], _taken(prop)
     name_col = None
     for h, values in cols.items():
         if h in taken or _numbers(values) is not None:
             continue
         vs = {v.strip() for v in values if v.strip()}
         for f, fvalues in fields.items():
-            if f == best[2]:
+            if f == id_field:
                 continue
             if vs and len(vs & set(fvalues)) / len(vs) >= 0.5:
                 name_col = h
@@ -313,13 +338,29 @@ def propose(table: Path, boundaries: Path) -> Proposal:
                 break
     if prop.boundaries_name[0] is None:
         for f, fvalues in fields.items():
-            if f != best[2] and _has(f, "name", "nam", "label") and _numbers(fvalues) is None:
+            if f != id_field and _has(f, "name", "nam", "label") and _numbers(fvalues) is None:
                 prop.boundaries_name = (f, "a text field whose name suggests district names")
                 break
     if name_col is not None:
-        take("district_name", name_col, "a text column of names")
+        _take(prop, "district_name", name_col, "a text column of names")
 
-    # the week
+
+def _propose_week(prop: Proposal, cols: Columns) -> None:
+    """The week: labels, else year and week-number columns, else dates; an ISO header."""
+    if not (_week_by_label(prop, cols) or _week_by_number(prop, cols)):
+        _week_by_date(prop, cols)
+    if not any(k in prop.columns for k in ("week", "year", "week_start", "week_end")):
+        raise InputError(
+            f"no week column was recognised in {prop.table.name} (columns: {', '.join(cols)}); "
+            "expected week labels (2026-W47), year and week-number columns, or dates"
+        )
+    for h in cols:
+        if "iso" in _norm(h).split() and any(k in prop.columns for k in ("week", "week_number")):
+            prop.week_system = ("iso", f"the header {h!r} says ISO")
+
+
+def _week_by_label(prop: Proposal, cols: Columns) -> bool:
+    taken = _taken(prop)
     label = next(
         (
             h
@@ -331,50 +372,54 @@ def propose(table: Path, boundaries: Path) -> Proposal:
         None,
     )
     if label is not None:
-        take("week", label, "values are epi-week labels like 2026-W47")
-    else:
-        year = week = None
-        for h, v in cols.items():
-            ints = _integers(v) if h not in taken else None
-            if ints and all(1900 <= x <= 2100 for x in ints) and _has(h, "year", "yr", "season"):
-                year = h
-                break
-        for h, v in cols.items():
-            ints = _integers(v) if h not in taken and h != year else None
-            if ints and all(1 <= x <= 53 for x in ints) and _has(h, "week", "wk", "epiweek", "epi"):
-                week = h
-                break
-        if year and week:
-            take("year", year, "whole numbers 1900..2100 under a year-like header")
-            take("week_number", week, "whole numbers 1..53 under a week-like header")
-        else:
-            for h, v in cols.items():
-                days = _dates(v) if h not in taken else None
-                if not days:
-                    continue
-                weekdays = {d.weekday() for d in days}
-                ending = _has(h, "end", "ending", "to")
-                if weekdays == {6}:  # Sunday: MMWR start (or ISO end)
-                    key, system = ("week_end", "iso") if ending else ("week_start", "mmwr")
-                elif weekdays == {5}:  # Saturday: MMWR end
-                    key, system = "week_end", "mmwr"
-                elif weekdays == {0}:  # Monday: ISO start
-                    key, system = "week_start", "iso"
-                else:
-                    continue
-                take(key, h, f"dates that all fall on a {days[0]:%A}")
-                prop.week_system = (system, f"the dates fall on {days[0]:%A}s")
-                break
-    if not any(k in prop.columns for k in ("week", "year", "week_start", "week_end")):
-        raise InputError(
-            f"no week column was recognised in {table.name} (columns: {', '.join(cols)}); "
-            "expected week labels (2026-W47), year and week-number columns, or dates"
-        )
-    for h in cols:
-        if "iso" in _norm(h).split() and any(k in prop.columns for k in ("week", "week_number")):
-            prop.week_system = ("iso", f"the header {h!r} says ISO")
+        _take(prop, "week", label, "values are epi-week labels like 2026-W47")
+    return label is not None
 
-    # counts
+
+def _week_by_number(prop: Proposal, cols: Columns) -> bool:
+    taken = _taken(prop)
+    year = week = None
+    for h, v in cols.items():
+        ints = _integers(v) if h not in taken else None
+        if ints and all(1900 <= x <= 2100 for x in ints) and _has(h, "year", "yr", "season"):
+            year = h
+            break
+    for h, v in cols.items():
+        ints = _integers(v) if h not in taken and h != year else None
+        if ints and all(1 <= x <= 53 for x in ints) and _has(h, "week", "wk", "epiweek", "epi"):
+            week = h
+            break
+    if year and week:
+        _take(prop, "year", year, "whole numbers 1900..2100 under a year-like header")
+        _take(prop, "week_number", week, "whole numbers 1..53 under a week-like header")
+        return True
+    return False
+
+
+def _week_by_date(prop: Proposal, cols: Columns) -> None:
+    taken = _taken(prop)
+    for h, v in cols.items():
+        days = _dates(v) if h not in taken else None
+        if not days:
+            continue
+        weekdays = {d.weekday() for d in days}
+        ending = _has(h, "end", "ending", "to")
+        if weekdays == {6}:  # Sunday: MMWR start (or ISO end)
+            key, system = ("week_end", "iso") if ending else ("week_start", "mmwr")
+        elif weekdays == {5}:  # Saturday: MMWR end
+            key, system = "week_end", "mmwr"
+        elif weekdays == {0}:  # Monday: ISO start
+            key, system = "week_start", "iso"
+        else:
+            continue
+        _take(prop, key, h, f"dates that all fall on a {days[0]:%A}")
+        prop.week_system = (system, f"the dates fall on {days[0]:%A}s")
+        break
+
+
+def _propose_counts(prop: Proposal, cols: Columns) -> None:
+    """ILI, total and sites: whole-number columns by header words; ILI never above total."""
+    taken = _taken(prop)
     counts: dict[str, list[int]] = {}
     for h, v in cols.items():
         whole = _integers(v) if h not in taken else None
@@ -401,16 +446,17 @@ def propose(table: Path, boundaries: Path) -> Proposal:
     if ili and total:
         pairs = list(zip(cols[ili], cols[total], strict=True))
         if all(float(a or 0) <= float(b or 0) for a, b in pairs):
-            take("ili_visits", ili, "whole numbers under an ILI header")
-            take("total_visits", total, "whole numbers, never below the ILI column")
+            _take(prop, "ili_visits", ili, "whole numbers under an ILI header")
+            _take(prop, "total_visits", total, "whole numbers, never below the ILI column")
         else:
-            take("ili_visits", total, "the smaller of the two count columns")
-            take("total_visits", ili, "the larger of the two count columns")
+            _take(prop, "ili_visits", total, "the smaller of the two count columns")
+            _take(prop, "total_visits", ili, "the larger of the two count columns")
     if "ili_visits" not in prop.columns or "total_visits" not in prop.columns:
         raise InputError(
-            f"the ILI and total visit columns were not recognised in {table.name} (columns: "
-            f"{', '.join(cols)}); set input.columns.ili_visits and total_visits by hand"
+            f"the ILI and total visit columns were not recognised in {prop.table.name} "
+            f"(columns: {', '.join(cols)}); set input.columns.ili_visits and total_visits by hand"
         )
+    taken = _taken(prop)
     sites = next(
         (
             h
@@ -421,9 +467,12 @@ def propose(table: Path, boundaries: Path) -> Proposal:
         None,
     )
     if sites:
-        take("reporting_sites", sites, "whole numbers under a sites header")
+        _take(prop, "reporting_sites", sites, "whole numbers under a sites header")
 
-    # a supplied rate
+
+def _propose_rate(prop: Proposal, cols: Columns) -> None:
+    """A supplied rate: numbers close to ILI / total x 100 (percent) or x 1000."""
+    taken = _taken(prop)
     ili_v, tot_v = cols[prop.columns["ili_visits"][0]], cols[prop.columns["total_visits"][0]]
     for h, v in cols.items():
         nums = _numbers(v) if h not in taken else None
@@ -439,142 +488,6 @@ def propose(table: Path, boundaries: Path) -> Proposal:
                 if x is not None:
                     close.append(abs(x - expected) <= max(0.05, 0.01 * expected))
             if close and sum(close) / len(close) >= 0.9:
-                take("rate", h, f"numbers close to ILI / total x {factor:g}")
+                _take(prop, "rate", h, f"numbers close to ILI / total x {factor:g}")
                 prop.rate_scale = (scale, f"the values match ILI / total x {factor:g}")
-                break
-        if "rate" in prop.columns:
-            break
-    unused = [h for h in cols if h not in taken]
-    if unused:
-        prop.notes.append(f"columns not used: {', '.join(unused)}")
-    return prop
-
-
-# --------------------------------------------------------------------------- writing
-
-
-def _q(value: str) -> str:
-    from json import dumps
-
-    return dumps(value, ensure_ascii=False)
-
-
-def _line(key: str, value: str, reason: str | None, width: int = 44) -> str:
-    text = f"{key} = {value}"
-    if reason:
-        return f"{text.ljust(width)} # GUESS: {reason}; check it"
-    return text
-
-
-def _rel(path: Path, base: Path) -> str:
-    try:
-        return Path(path).resolve().relative_to(base.resolve()).as_posix()
-    except ValueError:
-        return Path(path).resolve().as_posix()
-
-
-def render_config(prop: Proposal, out: Path, jurisdiction: str = "My jurisdiction") -> str:
-    """The configuration file text for ``prop``, written to sit at ``out``."""
-    base = out.parent
-    lines = [
-        "# sitrep configuration proposed by `sitrep init` from",
-        f"#   table:      {prop.table.name}",
-        f"#   boundaries: {prop.boundaries.name}",
-        "# Every line marked GUESS was inferred from the files: check it before the first report.",
-        "# Settings not shown keep their defaults; sitrep's demo configuration lists every key.",
-        "# Relative paths are resolved against this file's folder.",
-        "",
-        "[report]",
-        _line(
-            "jurisdiction",
-            _q(jurisdiction),
-            "a placeholder; shown in the header and the archive path",
-        ),
-        'title = "Weekly influenza-like illness situation report"',
-        _line("contact", _q("Surveillance team"), "a placeholder for the report's contact line"),
-        "",
-        "[input]",
-        f"table = {_q(_rel(prop.table, base))}",
-        '# prior_table = "last_week.csv"              # last week\'s extract, for revisions and change',
-        '# history = "past_seasons.csv"               # past seasons, for baselines and thresholds',
-        f"boundaries = {_q(_rel(prop.boundaries, base))}",
-    ]
-    if prop.layer:
-        lines.append(f"boundaries_layer = {_q(prop.layer)}")
-    lines.append(_line("boundaries_id_column", _q(prop.boundaries_id[0]), prop.boundaries_id[1]))
-    name, why = prop.boundaries_name
-    if name:
-        lines.append(_line("boundaries_name_column", _q(name), why))
-    else:
-        lines.append(
-            'boundaries_name_column = ""                # no name field found: ids are shown'
-        )
-    if prop.sheet:
-        lines.append(_line("sheet", _q(prop.sheet), "the worksheet holding the most data"))
-    if prop.table.suffix.lower() in (".csv", ".txt"):
-        lines.append(
-            _line("delimiter", _q(prop.delimiter), "the character splitting the header most often")
-        )
-        lines.append(f"encoding = {_q(prop.encoding)}")
-    lines += ["", "[input.columns]                                  # column names as in the table"]
-    order = (
-        "district_id",
-        "district_name",
-        "week",
-        "year",
-        "week_number",
-        "week_start",
-        "week_end",
-        "ili_visits",
-        "total_visits",
-        "reporting_sites",
-        "rate",
-    )
-    for key in order:
-        if key in prop.columns:
-            column, reason = prop.columns[key]
-            lines.append(_line(key, _q(column), reason))
-        elif key == "week" and any(k in prop.columns for k in ("year", "week_start", "week_end")):
-            lines.append(
-                'week = ""                                    # the week comes from the columns below'
-            )
-        elif key in ("district_name", "reporting_sites"):
-            lines.append(f'{key} = ""'.ljust(44) + " # not found in the table")
-    if prop.rate_scale:
-        lines.append(_line("rate_scale", _q(prop.rate_scale[0]), prop.rate_scale[1]))
-    lines += [
-        "",
-        "[weeks]",
-        _line("system", _q(prop.week_system[0]), prop.week_system[1]),
-        "season_start_week = 40                           # the week each season starts",
-        "",
-        "[output]",
-        'folder = "sitrep-out"',
-        'archive = "sitrep-out/archive"',
-        "",
-        "[email]",
-        "enabled = false                                  # set up [email] when the report is ready to send",
-    ]
-    if prop.notes:
-        lines += ["", "# Notes from `sitrep init`:"] + [f"# - {n}" for n in prop.notes]
-    return "\n".join(lines) + "\n"
-
-
-def write_config(prop: Proposal, out: Path, *, force: bool = False) -> Path:
-    """Write the proposal to ``out`` (refusing to replace a file unless ``force``)."""
-    out = Path(out)
-    if out.exists() and not force:
-        raise ConfigError(f"{out} exists; choose another --out or pass --force to replace it")
-    text = render_config(prop, out)
-    from sitrep.config import load_config
-
-    out.parent.mkdir(parents=True, exist_ok=True)
-    tmp = out.with_name(out.name + ".tmp")
-    tmp.write_text(text, encoding="utf-8")
-    try:
-        load_config(tmp)  # the proposal must be a valid configuration
-    except ConfigError:
-        tmp.unlink()
-        raise
-    tmp.replace(out)
-    return out
+                return

@@ -193,7 +193,7 @@ def test_every_blocking_rule_is_listed_with_a_description() -> None:
 
 
 def _error_rules_in_table(text: str) -> set[str]:
-    """Rule ids of the error lines of a printed findings table (sitrep.cli._print_findings)."""
+    """Rule ids of the error lines of a printed findings table (sitrep.cli.common.print_findings)."""
     return {m.group(1) for m in re.finditer(r"(?m)^error\s+(\S+)", text)}
 
 
