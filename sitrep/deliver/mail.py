@@ -1,13 +1,10 @@
-"""E-mail delivery of an archived bundle's PDF over SMTP.
+"""E-mail delivery of an archived bundle's PDF.
 
 * :func:`build_message` makes an RFC 5322 message (``email.message.EmailMessage``
   with ``email.policy.default``); CR/LF in any header value is refused.
-* :func:`send_message` talks SMTP: STARTTLS or implicit TLS with a verifying
-  context (``ssl.create_default_context()``), login from environment
-  variables, 4xx replies retried with back-off, 5xx not, refused recipients
-  reported, and a connection lost after the message data was transmitted
-  reported as ``"unknown"`` and never resent automatically (RFC 1047: the
-  server may already have accepted it).
+* :func:`send_message` (in :mod:`sitrep.deliver.smtp`, importable from here)
+  talks SMTP: TLS, login, retries and the ``"unknown"`` outcome of a
+  connection lost after the message data was transmitted.
 * :func:`send_bundle` sends one bundle's ``report.pdf``. A bundle is immutable
   and checksummed, so the send record is kept *next to* it:
   ``<bundle>.sent.json`` (every send attempt with Message-ID, time and outcome)
@@ -29,17 +26,21 @@ import email.utils
 import hashlib
 import json
 import os
-import smtplib
 import ssl
 import time
 from collections.abc import Callable, Iterator, Mapping, Sequence
 from email.message import EmailMessage
 from pathlib import Path
-from types import MappingProxyType
-from typing import Any, Literal
+from typing import Any
 
 from sitrep.config import EmailSettings
-from sitrep.deliver.archive import MANIFEST_JSON, jurisdiction_slug, replace_file, verify_bundle
+from sitrep.deliver.archive import (
+    MANIFEST_JSON,
+    jurisdiction_slug,
+    replace_file,
+    verify_bundle,
+)
+from sitrep.deliver.smtp import SendOutcome, send_message
 from sitrep.errors import DeliveryError
 
 __all__ = [
@@ -53,45 +54,8 @@ __all__ = [
     "sent_record_path",
 ]
 
-Status = Literal["sent", "failed", "unknown", "partial", "dry-run"]
 _DELIVERED = frozenset({"sent", "partial", "unknown"})
 """Outcomes after which a copy may have reached someone: a new send needs --resend."""
-
-
-@dataclasses.dataclass(frozen=True)
-class SendOutcome:
-    """What happened to one message.
-
-    ``status``: ``"sent"`` (every recipient accepted), ``"partial"`` (some
-    refused), ``"failed"`` (nothing accepted; see ``detail``), ``"unknown"``
-    (the connection was lost after the message data was transmitted; it may
-    or may not have been delivered, and it is not resent), ``"dry-run"``
-    (written to a file, not sent). ``refused`` maps each refused recipient to
-    ``(SMTP code, server text)``. ``attempts`` counts SMTP sessions opened.
-    """
-
-    status: Status
-    message_id: str
-    accepted: tuple[str, ...]
-    refused: Mapping[str, tuple[int, str]]
-    attempts: int
-    detail: str
-    time: dt.datetime
-
-    def __post_init__(self) -> None:
-        object.__setattr__(self, "refused", MappingProxyType(dict(self.refused)))
-
-    def as_dict(self) -> dict[str, Any]:
-        """JSON-ready form (for ``<bundle>.sent.json``)."""
-        return {
-            "status": self.status,
-            "message_id": self.message_id,
-            "accepted": list(self.accepted),
-            "refused": {k: [code, text] for k, (code, text) in sorted(self.refused.items())},
-            "attempts": self.attempts,
-            "detail": self.detail,
-            "time": self.time.isoformat(),
-        }
 
 
 # --------------------------------------------------------------------------- message
@@ -250,223 +214,6 @@ def build_message(
     return msg
 
 
-# --------------------------------------------------------------------------- SMTP
-
-
-class _TrackingMixin:
-    """Remember whether the message data (up to the final ``.``) was transmitted."""
-
-    data_sent = False
-    _in_data = False
-    _sends_in_data = 0
-
-    def data(self, msg: Any) -> Any:
-        self._in_data, self._sends_in_data = True, 0
-        try:
-            return super().data(msg)  # type: ignore[misc]
-        finally:
-            self._in_data = False
-
-    def send(self, s: Any) -> None:
-        super().send(s)  # type: ignore[misc]
-        if self._in_data:
-            self._sends_in_data += 1
-            if self._sends_in_data >= 2:  # 1st send is "DATA", 2nd the message and "."
-                self.data_sent = True
-
-
-class _SMTP(_TrackingMixin, smtplib.SMTP):
-    pass
-
-
-class _SMTPS(_TrackingMixin, smtplib.SMTP_SSL):
-    pass
-
-
-def _text(value: Any) -> str:
-    if isinstance(value, bytes):
-        return value.decode("utf-8", "replace")
-    return str(value)
-
-
-def _credentials(settings: EmailSettings, env: Mapping[str, str]) -> tuple[str, str] | None:
-    names = (settings.username_env, settings.password_env)
-    if not any(names):
-        return None
-    if not all(names):
-        raise DeliveryError(
-            "set both email.username_env and email.password_env (names of environment "
-            "variables), or neither"
-        )
-    missing = [n for n in names if n and not env.get(n)]
-    if missing:
-        raise DeliveryError(
-            f"environment variable(s) {', '.join(missing)} named in [email] are not set; export "
-            "them in the service that runs sitrep"
-        )
-    if settings.security == "none":
-        raise DeliveryError(
-            "refusing to send an SMTP password over an unencrypted connection; set "
-            "email.security = 'starttls' or 'tls'"
-        )
-    return env[settings.username_env or ""], env[settings.password_env or ""]
-
-
-def send_message(
-    msg: EmailMessage,
-    settings: EmailSettings,
-    *,
-    env: Mapping[str, str] = os.environ,
-    sleep: Callable[[float], None] = time.sleep,
-    ssl_context: ssl.SSLContext | None = None,
-) -> SendOutcome:
-    """Send ``msg`` to the recipients in its headers over SMTP.
-
-    Each attempt opens one SMTP session: connect (implicit TLS for
-    ``security = "tls"``), EHLO, STARTTLS + EHLO for ``"starttls"`` (a server
-    that does not offer STARTTLS is refused, not used in clear), login when
-    credentials are configured, then ``smtplib.SMTP.send_message``.
-
-    Retry rule (RFC 5321 reply classes): a 4yz reply (transient) or a
-    connection failure *before* the message data was transmitted leads to
-    another attempt after ``retry_backoff_s * 2**(n-1)`` seconds, up to
-    ``settings.retries`` retries; a 5yz reply (permanent), a TLS or
-    authentication failure is not retried. When the connection is lost
-    *after* the message data including the final ``.`` was transmitted, the
-    outcome is ``"unknown"`` and nothing is resent (RFC 1047). Recipients the
-    server refuses are reported in ``refused``; if others were accepted the
-    status is ``"partial"``.
-
-    Parameters
-    ----------
-    msg : email.message.EmailMessage
-        From :func:`build_message`.
-    settings : EmailSettings
-        Host, port, security, credential variable names, timeout, retries.
-    env : Mapping[str, str]
-        Where the credential variables are looked up.
-    sleep : callable
-        Back-off wait (injectable for tests).
-    ssl_context : ssl.SSLContext or None
-        TLS context; default ``ssl.create_default_context()`` (verifies the
-        certificate and host name).
-
-    Returns
-    -------
-    SendOutcome
-        Never raises for SMTP or network failures; they become ``"failed"``
-        or ``"unknown"`` with a ``detail``.
-
-    Raises
-    ------
-    DeliveryError
-        If the credentials are half configured or missing from ``env``, or a
-        password would go over an unencrypted connection.
-    """
-    creds = _credentials(settings, env)
-    context = ssl_context if ssl_context is not None else ssl.create_default_context()
-    message_id = str(msg.get("Message-ID", ""))
-    recipients = [
-        a for _, a in email.utils.getaddresses(msg.get_all("To", []) + msg.get_all("Cc", []))
-    ]
-    attempts = 0
-    detail = ""
-    refused: dict[str, tuple[int, str]] = {}
-
-    def outcome(status: Status, accepted: Sequence[str] = ()) -> SendOutcome:
-        return SendOutcome(
-            status=status,
-            message_id=message_id,
-            accepted=tuple(accepted),
-            refused=refused,
-            attempts=attempts,
-            detail=detail,
-            time=dt.datetime.now(dt.UTC),
-        )
-
-    for attempt in range(settings.retries + 1):
-        if attempt:
-            sleep(settings.retry_backoff_s * 2 ** (attempt - 1))
-        attempts += 1
-        refused = {}
-        client: _SMTP | _SMTPS | None = None
-        retry = False
-        try:
-            if settings.security == "tls":
-                client = _SMTPS(
-                    settings.host, settings.port, timeout=settings.timeout_s, context=context
-                )
-            else:
-                client = _SMTP(settings.host, settings.port, timeout=settings.timeout_s)
-            client.ehlo()
-            if settings.security == "starttls":
-                if not client.has_extn("starttls"):
-                    detail = (
-                        f"{settings.host}:{settings.port} does not offer STARTTLS; sitrep will not "
-                        "send in clear. Use email.security = 'tls' or fix the server"
-                    )
-                    return outcome("failed")
-                client.starttls(context=context)
-                client.ehlo()
-            if creds is not None:
-                client.login(*creds)
-            refused_raw = client.send_message(msg)
-            refused = {k: (int(c), _text(t)) for k, (c, t) in refused_raw.items()}
-            accepted = [r for r in recipients if r not in refused]
-            with contextlib.suppress(smtplib.SMTPException, OSError):
-                client.quit()
-            client = None
-            if refused:
-                detail = "refused: " + "; ".join(
-                    f"{k} ({c} {t})" for k, (c, t) in sorted(refused.items())
-                )
-                return outcome("partial", accepted)
-            detail = f"accepted by {settings.host}:{settings.port}"
-            return outcome("sent", accepted)
-        except smtplib.SMTPRecipientsRefused as exc:
-            refused = {k: (int(c), _text(t)) for k, (c, t) in exc.recipients.items()}
-            detail = "every recipient was refused: " + "; ".join(
-                f"{k} ({c} {t})" for k, (c, t) in sorted(refused.items())
-            )
-            retry = all(400 <= c < 500 for c, _ in refused.values())
-        except smtplib.SMTPNotSupportedError as exc:
-            detail = f"the server does not support a required feature: {exc}"
-        except smtplib.SMTPAuthenticationError as exc:
-            detail = (
-                f"login refused ({exc.smtp_code} {_text(exc.smtp_error)}); check the credentials"
-            )
-            retry = 400 <= exc.smtp_code < 500
-        except smtplib.SMTPResponseException as exc:
-            detail = f"server replied {exc.smtp_code} {_text(exc.smtp_error)}"
-            retry = 400 <= exc.smtp_code < 500
-        except ssl.SSLError as exc:
-            detail = (
-                f"TLS with {settings.host}:{settings.port} failed ({exc}); the certificate must be "
-                "valid for the host name and trusted by the system"
-            )
-        except (smtplib.SMTPException, OSError) as exc:
-            if client is not None and client.data_sent:
-                detail = (
-                    f"the connection was lost after the message was transmitted ({type(exc).__name__}: "
-                    f"{exc}); the server may have accepted it. Not resent: ask a recipient, then use "
-                    "--resend if it did not arrive"
-                )
-                return outcome("unknown")
-            detail = (
-                f"could not talk to {settings.host}:{settings.port}: {type(exc).__name__}: {exc}"
-            )
-            retry = True
-        finally:
-            if client is not None:
-                with contextlib.suppress(Exception):
-                    client.close()
-        if not retry:
-            break
-    if attempts > 1:
-        detail = f"{detail} (after {attempts} attempts)"
-    return outcome("failed")
-
-
 # --------------------------------------------------------------------------- bundles
 
 
@@ -584,6 +331,50 @@ def send_bundle(
         If any check above fails, or the record cannot be written.
     """
     bundle_path = Path(bundle_path)
+    place = _check_sendable(bundle_path, settings, dry_run=dry_run, now=now)
+    record_path = sent_record_path(bundle_path)
+    with _send_lock(bundle_path):
+        history = _send_history(bundle_path, record_path, resend=resend)
+        manifest_sha = hashlib.sha256((bundle_path / MANIFEST_JSON).read_bytes()).hexdigest()
+        seed = f"{place.seed}|{manifest_sha}|send-{len(history) + 1}"
+        full_subject = (
+            f"{settings.subject_prefix} {subject}" if settings.subject_prefix else subject
+        )
+        msg = build_message(
+            subject=full_subject,
+            body=body,
+            sender=settings.sender,
+            recipients=settings.recipients,
+            reply_to=settings.reply_to,
+            attachments=[(place.attachment, place.pdf.read_bytes(), "application/pdf")],
+            message_id_seed=seed,
+            date=now,
+        )
+        if dry_run:
+            return _write_eml(bundle_path, msg, now)
+        outcome = send_message(msg, settings, env=env, sleep=sleep, ssl_context=ssl_context)
+        history.append(
+            outcome.as_dict() | {"date_header": now.isoformat(), "manifest_sha256": manifest_sha}
+        )
+        _write_record(record_path, bundle_path, history, outcome)
+    return outcome
+
+
+@dataclasses.dataclass(frozen=True)
+class _Sendable:
+    """What a bundle that may be sent contributes to its message."""
+
+    seed: str
+    """``jurisdiction|week|v<k>``: the start of the Message-ID seed."""
+    attachment: str
+    """``<jurisdiction slug>-<week>-v<k>.pdf``."""
+    pdf: Path
+
+
+def _check_sendable(
+    bundle_path: Path, settings: EmailSettings, *, dry_run: bool, now: dt.datetime
+) -> _Sendable:
+    """Refuse a bundle that fails verification or validation, has no PDF, or cannot be sent."""
     result = verify_bundle(bundle_path)
     if not result.ok:
         raise DeliveryError(
@@ -610,68 +401,57 @@ def send_bundle(
         raise DeliveryError("set [email] sender and recipients before sending")
     if isinstance(now, dt.datetime) and now.tzinfo is None:
         raise DeliveryError(f"now must be time zone-aware, got {now!r}")
+    return _Sendable(
+        seed=f"{jurisdiction}|{week}|v{version}",
+        attachment=f"{jurisdiction_slug(jurisdiction)}-{week}-v{version}.pdf",
+        pdf=pdf_file,
+    )
 
-    record_path = sent_record_path(bundle_path)
-    with _send_lock(bundle_path):
-        history: list[dict[str, Any]] = []
-        if record_path.exists():
-            loaded = _load_json(record_path, "send record")
-            history = list(loaded.get("sends", [])) if isinstance(loaded, dict) else []
-            delivered = [
-                h for h in history if isinstance(h, dict) and h.get("status") in _DELIVERED
-            ]
-            if delivered and not resend:
-                last = delivered[-1]
-                raise DeliveryError(
-                    f"{bundle_path} was already sent ({last.get('status')} at {last.get('time')}, "
-                    f"Message-ID {last.get('message_id')}); use sitrep send --resend to send it again"
-                )
-        manifest_sha = hashlib.sha256((bundle_path / MANIFEST_JSON).read_bytes()).hexdigest()
-        seed = f"{jurisdiction}|{week}|v{version}|{manifest_sha}|send-{len(history) + 1}"
-        full_subject = (
-            f"{settings.subject_prefix} {subject}" if settings.subject_prefix else subject
+
+def _send_history(bundle_path: Path, record_path: Path, *, resend: bool) -> list[dict[str, Any]]:
+    """Earlier sends of the bundle; refuses a second delivery unless ``resend``."""
+    if not record_path.exists():
+        return []
+    loaded = _load_json(record_path, "send record")
+    history = list(loaded.get("sends", [])) if isinstance(loaded, dict) else []
+    delivered = [h for h in history if isinstance(h, dict) and h.get("status") in _DELIVERED]
+    if delivered and not resend:
+        last = delivered[-1]
+        raise DeliveryError(
+            f"{bundle_path} was already sent ({last.get('status')} at {last.get('time')}, "
+            f"Message-ID {last.get('message_id')}); use sitrep send --resend to send it again"
         )
-        msg = build_message(
-            subject=full_subject,
-            body=body,
-            sender=settings.sender,
-            recipients=settings.recipients,
-            reply_to=settings.reply_to,
-            attachments=[
-                (
-                    f"{jurisdiction_slug(jurisdiction)}-{week}-v{version}.pdf",
-                    pdf_file.read_bytes(),
-                    "application/pdf",
-                )
-            ],
-            message_id_seed=seed,
-            date=now,
-        )
-        if dry_run:
-            target = eml_path(bundle_path)
-            replace_file(target, msg.as_bytes(policy=email.policy.SMTP))
-            return SendOutcome(
-                status="dry-run",
-                message_id=str(msg["Message-ID"]),
-                accepted=(),
-                refused={},
-                attempts=0,
-                detail=f"written to {target}",
-                time=now,
-            )
-        outcome = send_message(msg, settings, env=env, sleep=sleep, ssl_context=ssl_context)
-        entry = outcome.as_dict() | {
-            "date_header": now.isoformat(),
-            "manifest_sha256": manifest_sha,
-        }
-        history.append(entry)
-        record = {"bundle": bundle_path.name, "sends": history}
-        text = json.dumps(record, sort_keys=True, indent=2, ensure_ascii=False) + "\n"
-        try:
-            replace_file(record_path, text.encode("utf-8"))
-        except OSError as exc:
-            raise DeliveryError(
-                f"the message was handed to SMTP ({outcome.status}) but {record_path} could not be "
-                f"written: {exc}; do not resend before checking with a recipient"
-            ) from exc
-    return outcome
+    return history
+
+
+def _write_eml(bundle_path: Path, msg: EmailMessage, now: dt.datetime) -> SendOutcome:
+    """A dry run: the message (CRLF line ends) into ``<bundle>.eml``; nothing is recorded."""
+    target = eml_path(bundle_path)
+    replace_file(target, msg.as_bytes(policy=email.policy.SMTP))
+    return SendOutcome(
+        status="dry-run",
+        message_id=str(msg["Message-ID"]),
+        accepted=(),
+        refused={},
+        attempts=0,
+        detail=f"written to {target}",
+        time=now,
+    )
+
+
+def _write_record(
+    record_path: Path,
+    bundle_path: Path,
+    history: list[dict[str, Any]],
+    outcome: SendOutcome,
+) -> None:
+    """Replace ``<bundle>.sent.json`` with the history including this send."""
+    record = {"bundle": bundle_path.name, "sends": history}
+    text = json.dumps(record, sort_keys=True, indent=2, ensure_ascii=False) + "\n"
+    try:
+        replace_file(record_path, text.encode("utf-8"))
+    except OSError as exc:
+        raise DeliveryError(
+            f"the message was handed to SMTP ({outcome.status}) but {record_path} could not be "
+            f"written: {exc}; do not resend before checking with a recipient"
+        ) from exc
